@@ -115,6 +115,8 @@ def read_covariance_file(path, fmt: str | None = None):
     matrix : ndarray
     unit : str, astropy unit or None
         None for ``.npy`` (or a file that gives no unit).
+    fmt : str
+        The format read (``.npy`` alone may lack a unit, see the module docstring).
     """
     path = Path(path)
     display = str(path)
@@ -133,7 +135,8 @@ def read_covariance_file(path, fmt: str | None = None):
     readers = {"npy": _npy_matrix, "fits": _fits_image, "ecsv": _ecsv_matrix, "csv": _csv_matrix}
     if fmt not in readers:
         raise InputFileError(f"{display}: unknown covariance format {fmt!r}; use one of {', '.join(readers)}")
-    return readers[fmt](path, display)
+    matrix, unit = readers[fmt](path, display)
+    return matrix, unit, fmt
 
 
 def check_matrix(matrix: np.ndarray, n_points: int, display: str, data_display: str) -> np.ndarray:

@@ -380,9 +380,12 @@ def _assemble(raw: RawTable, path: Path, name, kind, resolving_power, has_extern
 def _attach_covariance(dataset: Dataset, raw: RawTable, flux_unit, covariance, cov_fmt) -> None:
     """Read, validate and convert the covariance (separate file first, else embedded) into ``dataset``."""
     cols_cov = _find(raw, "covariance")
+    default_unit = None
     if covariance is not None:
-        matrix, unit = cov.read_covariance_file(covariance, fmt=cov_fmt)
+        matrix, unit, fmt = cov.read_covariance_file(covariance, fmt=cov_fmt)
         display = str(covariance)
+        if fmt == "npy":  # a bare array has no unit: it is in the dataset file's flux unit squared
+            default_unit = flux_unit ** 2
     elif raw.covariance is not None:
         (matrix, unit), display = raw.covariance, f"{raw.display}[COVARIANCE]"
     elif cols_cov is not None:
@@ -391,7 +394,7 @@ def _attach_covariance(dataset: Dataset, raw: RawTable, flux_unit, covariance, c
     else:
         return
     dataset.covariance = cov.load_covariance(matrix, unit, dataset.wavelength_um, display, raw.display,
-                                             default_unit=flux_unit ** 2)
+                                             default_unit=default_unit)
     dataset.uncertainty = np.sqrt(np.diag(dataset.covariance))  # the diagonal supersedes the column
 
 

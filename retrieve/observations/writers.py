@@ -51,7 +51,8 @@ def dataset_table(dataset: Dataset, meta: dict | None = None):
         table["wavelength_low"] = dataset.channel_edges_um[:, 0] * WAVELENGTH_UNIT
         table["wavelength_high"] = dataset.channel_edges_um[:, 1] * WAVELENGTH_UNIT
     table["flux"] = np.asarray(dataset.flux, dtype=float) * FLUX_UNIT
-    table["uncertainty"] = np.sqrt(dataset.variance()) * FLUX_UNIT
+    sigma = dataset.uncertainty if dataset.covariance is None else np.sqrt(np.diag(dataset.covariance))
+    table["uncertainty"] = np.asarray(sigma, dtype=float) * FLUX_UNIT
     if dataset.filters is not None:
         table["filter"] = list(dataset.filters)
     if dataset.resolving_power is not None and np.ndim(dataset.resolving_power) == 1:
