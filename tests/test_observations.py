@@ -425,3 +425,15 @@ def test_kind_and_option_errors(tmp_path):
     path = _fits_spectrum(tmp_path / "nobunit.fits", cov=np.diag(ERR_MJY ** 2), cov_unit=None)
     with pytest.raises(InputFileError, match=r"nobunit.fits\[COVARIANCE\]: covariance has no unit"):
         read_dataset(path)
+
+
+def test_fits_photometry_detected_by_content(tmp_path):
+    cols = [fits.Column(name="Filter", format="12A", array=np.array(["twomass-J", "wise2010-W1"])),
+            fits.Column(name="flux", format="D", unit="Jy", array=np.array([1e-3, 2e-3])),
+            fits.Column(name="sigma", format="D", unit="Jy", array=np.array([1e-4, 2e-4]))]
+    path = tmp_path / "phot.dat"  # unknown suffix: the FITS signature decides
+    fits.BinTableHDU.from_columns(cols).writeto(path)
+    ds = read_dataset(path)
+    assert ds.kind == "photometry" and ds.filters == ["twomass-J", "wise2010-W1"]
+    wl = np.array([filter_effective_wavelength(f) for f in ds.filters])
+    np.testing.assert_allclose(ds.flux, _astropy_flam([1e-3, 2e-3], "Jy", wl), rtol=1e-15)  # source: astropy.units
