@@ -1,8 +1,6 @@
 """Reading, validating, converting and writing observation files."""
 from __future__ import annotations
 
-import os
-from pathlib import Path
 
 import astropy.constants as const
 import astropy.units as u

@@ -65,7 +65,8 @@ def _ecsv_matrix(path: Path, display: str):
         raise InputFileError(f"{display}: not a valid ECSV file ({str(exc).splitlines()[0]})") from None
     units = {str(c.unit) if c.unit is not None else None for c in table.itercols()}
     if len(units) > 1:
-        raise InputFileError(f"{display}: all covariance columns must have the same unit, got {sorted(map(str, units))}")
+        raise InputFileError(f"{display}: all covariance columns must have the same unit, "
+                             f"got {sorted(map(str, units))}")
     unit = table[table.colnames[0]].unit if table.colnames else None
     if unit is None:
         unit = table.meta.get("unit")
@@ -77,7 +78,8 @@ def _csv_matrix(path: Path, display: str):
     parsed = parse_units_csv(read_text(path, display), display, header_optional=True)
     units = set(parsed.units)
     if len(units) > 1:
-        raise InputFileError(f"{display}: all covariance columns must have the same unit, got {sorted(map(str, units))}")
+        raise InputFileError(f"{display}: all covariance columns must have the same unit, "
+                             f"got {sorted(map(str, units))}")
     unit = parsed.units[0] if parsed.units else None
     if unit is None:
         unit = parsed.meta.get("unit")
@@ -87,7 +89,8 @@ def _csv_matrix(path: Path, display: str):
             try:
                 matrix[i, j] = float(text)
             except ValueError:
-                raise InputFileError(f"{display}: row {i + 1}, column {j + 1}: value {text!r} is not a number") from None
+                raise InputFileError(f"{display}: row {i + 1}, column {j + 1}: "
+                                     f"value {text!r} is not a number") from None
     return matrix, unit
 
 
