@@ -18,6 +18,7 @@ from ..errors import UserError
 # Sub-command modules, in the order they appear in --help.
 COMMAND_MODULES = [
     "describe",
+    "fit",
 ]
 
 

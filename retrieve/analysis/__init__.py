@@ -1,0 +1,1 @@
+"""Analysis of posteriors: summaries, derived quantities, evidence, detections, band depths."""

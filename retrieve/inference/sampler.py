@@ -1,0 +1,333 @@
+"""The emcee driver: start near the posterior maximum, sample in checkpointed chunks, stop on convergence.
+
+Steps
+-----
+1. Global optimisation of ln posterior with
+   :func:`scipy.optimize.differential_evolution` inside the priors' bounds
+   (seeded, ``updating="deferred"`` so that serial and parallel runs agree,
+   evaluations capped at ``optimiser_max_evaluations``).
+2. A Gaussian ball of width ``ball_scale`` × prior width around the optimum,
+   clipped to the prior support; walkers with ln p = −∞ are redrawn.
+3. :class:`emcee.EnsembleSampler` (stretch move, Goodman & Weare 2010) run in
+   chunks of ``check_every`` steps.  After each chunk: τ estimate,
+   convergence test (:mod:`retrieve.inference.convergence`) and an atomic
+   checkpoint (:mod:`retrieve.inference.checkpoint`).
+
+Every chunk starts from an explicit ``emcee.State`` (positions, ln p and the
+generator state), both in a fresh run and after ``resume``; a resumed run
+therefore reproduces the uninterrupted chain exactly.
+
+Parallelism: with ``workers > 1`` a :class:`multiprocessing.Pool` is started
+whose initialiser builds the forward model once per worker process.
+"""
+from __future__ import annotations
+
+import dataclasses
+import math
+import multiprocessing
+import time
+import warnings
+from collections import Counter
+from pathlib import Path
+
+import emcee
+import numpy as np
+from scipy import optimize
+
+from ..errors import UserError
+from .checkpoint import Checkpoint, read_checkpoint, remove_stale_temporaries, write_checkpoint
+from .convergence import ConvergenceRule, autocorr_time
+
+# ln p substituted for -inf inside the optimiser (differential evolution needs finite values)
+_WORST = 1e300
+
+
+@dataclasses.dataclass(frozen=True)
+class SamplerSettings:
+    """Sampler options (the ``[sampler]`` TOML table; see :mod:`retrieve.inference.config`)."""
+
+    walkers: int = 0
+    max_steps: int = 20000
+    check_every: int = 100
+    seed: int = 0
+    tau_factor: float = 50.0
+    tau_rtol: float = 0.01
+    burn_in_tau: float = 3.0
+    thin_tau: float = 0.5
+    burn_in: int | None = None
+    thin: int | None = None
+    optimiser: str = "differential-evolution"
+    optimiser_max_evaluations: int = 20000
+    optimiser_popsize: int = 10
+    ball_scale: float = 1e-3
+    predictive_draws: int = 200
+    progress: bool = True
+
+    def n_walkers(self, ndim: int) -> int:
+        """Walker count: ``walkers`` or, when 0, the smallest even number ≥ 2·ndim + 2."""
+        if self.walkers:
+            return int(self.walkers)
+        n = 2 * ndim + 2
+        return n + (n % 2)
+
+
+class SamplerInterrupted(UserError):
+    """Raised when a checkpoint does not match the run being resumed."""
+
+
+# --------------------------------------------------------------------------- evaluation map
+_WORKER_POSTERIOR = None
+
+
+def _init_worker(posterior):
+    """Pool initialiser: keep the posterior and build its model once in this process."""
+    global _WORKER_POSTERIOR
+    _WORKER_POSTERIOR = posterior
+    _ = posterior.model
+
+
+def _worker_evaluate(theta):
+    return _WORKER_POSTERIOR.evaluate(theta)
+
+
+class EvaluationMap:
+    """Evaluate the posterior over many points, serially or on a pool, counting failures.
+
+    Passed to emcee as its ``pool`` (emcee only calls ``.map``): the function
+    emcee hands over is its wrapper of the same posterior, so we evaluate the
+    posterior directly and keep the failure reasons, which emcee would drop.
+    """
+
+    def __init__(self, posterior, workers: int = 1):
+        self.posterior = posterior
+        self.workers = int(workers)
+        self.failures: Counter = Counter()
+        self.n_evaluations = 0
+        self._pool = None
+        if self.workers > 1:
+            ctx = multiprocessing.get_context("fork")
+            self._pool = ctx.Pool(self.workers, initializer=_init_worker, initargs=(posterior,))
+
+    def evaluate(self, points) -> np.ndarray:
+        points = [np.asarray(p, dtype=float) for p in points]
+        if self._pool is not None:
+            results = self._pool.map(_worker_evaluate, points)
+        else:
+            results = [self.posterior.evaluate(p) for p in points]
+        for _, reason in results:
+            if reason:
+                self.failures[reason] += 1
+        self.n_evaluations += len(points)
+        return np.array([lp for lp, _ in results], dtype=float)
+
+    def map(self, func, iterable):  # emcee's pool interface
+        return list(self.evaluate(list(iterable)))
+
+    def negative_map(self, func, iterable):  # differential_evolution's ``workers`` interface
+        lp = self.evaluate(list(iterable))
+        return list(np.where(np.isfinite(lp), -lp, _WORST))
+
+    def close(self):
+        if self._pool is not None:
+            self._pool.close()
+            self._pool.join()
+            self._pool = None
+
+    def __enter__(self):
+        return self
+
+    def __exit__(self, *exc):
+        if self._pool is not None and exc[0] is not None:
+            self._pool.terminate()
+        self.close()
+
+
+# --------------------------------------------------------------------------- start positions
+def prior_bounds(priors) -> np.ndarray:
+    """(ndim, 2) finite bounds holding the prior mass."""
+    return np.array([p.bounds for p in priors], dtype=float)
+
+
+def find_maximum(evaluator: EvaluationMap, priors, settings: SamplerSettings, seed: int) -> np.ndarray:
+    """Approximate maximum of ln posterior by differential evolution within the prior bounds."""
+    bounds = prior_bounds(priors)
+    ndim = len(priors)
+    popsize = max(int(settings.optimiser_popsize), 1)
+    maxiter = max(1, settings.optimiser_max_evaluations // (popsize * ndim) - 1)
+    res = optimize.differential_evolution(
+        lambda x: 0.0, bounds, maxiter=maxiter, popsize=popsize, seed=seed, polish=False,
+        updating="deferred", workers=evaluator.negative_map, init="latinhypercube", tol=1e-8)
+    return np.asarray(res.x, dtype=float)
+
+
+def initial_ball(centre, priors, n_walkers: int, scale: float, rng: np.random.Generator,
+                 evaluator: EvaluationMap, max_tries: int = 50) -> tuple[np.ndarray, np.ndarray]:
+    """Walker positions in a small ball around ``centre``, all with finite ln p."""
+    bounds = prior_bounds(priors)
+    width = bounds[:, 1] - bounds[:, 0]
+    eps = 1e-9 * width
+    pos = np.empty((n_walkers, len(priors)))
+    lp = np.full(n_walkers, -np.inf)
+    todo = np.arange(n_walkers)
+    for attempt in range(max_tries):
+        grow = 2.0 ** min(attempt, 10)  # widen the ball if the centre sits on a cliff
+        trial = centre + scale * grow * width * rng.standard_normal((todo.size, len(priors)))
+        trial = np.clip(trial, bounds[:, 0] + eps, bounds[:, 1] - eps)
+        pos[todo] = trial
+        lp[todo] = evaluator.evaluate(trial)
+        todo = np.flatnonzero(~np.isfinite(lp))
+        if todo.size == 0:
+            return pos, lp
+    reasons = ", ".join(f"{k} ×{v}" for k, v in evaluator.failures.most_common(3)) or "zero prior density"
+    raise UserError(f"could not place {todo.size} of {n_walkers} walkers at a finite posterior "
+                    f"after {max_tries} tries ({reasons}); widen the priors or check the model")
+
+
+def prior_draws(priors, n_walkers: int, rng: np.random.Generator, evaluator: EvaluationMap,
+                max_tries: int = 50):
+    """Walker positions drawn from the prior, all with finite ln p (optimiser switched off)."""
+    pos = np.column_stack([p.sample(rng, n_walkers) for p in priors])
+    lp = evaluator.evaluate(pos)
+    for _ in range(max_tries):
+        bad = np.flatnonzero(~np.isfinite(lp))
+        if bad.size == 0:
+            return pos, lp
+        pos[bad] = np.column_stack([p.sample(rng, bad.size) for p in priors])
+        lp[bad] = evaluator.evaluate(pos[bad])
+    raise UserError("could not draw walkers with finite posterior from the prior; check the model")
+
+
+# --------------------------------------------------------------------------- the run
+@dataclasses.dataclass
+class SamplerResult:
+    """Outcome of :func:`run_sampler`."""
+
+    checkpoint: Checkpoint
+    converged: bool
+    tau: np.ndarray
+    acceptance_fraction: np.ndarray
+    n_evaluations: int
+    failures: Counter
+    elapsed_s: float
+    sampling_s: float
+    resumed_from: int = 0
+
+
+def _seeds(seed: int) -> tuple[int, np.random.Generator, int]:
+    """Independent streams for the optimiser, the ball and emcee from one seed."""
+    ss = np.random.SeedSequence(int(seed))
+    a, b, c = ss.spawn(3)
+    return (int(a.generate_state(1)[0]), np.random.default_rng(b),
+            int(c.generate_state(1)[0]))
+
+
+def start_state(posterior, settings: SamplerSettings, evaluator: EvaluationMap):
+    """Initial positions, their ln p and emcee's initial generator state."""
+    de_seed, rng, emcee_seed = _seeds(settings.seed)
+    n_walkers = settings.n_walkers(posterior.ndim)
+    if settings.optimiser == "none":
+        pos, lp = prior_draws(posterior.priors, n_walkers, rng, evaluator)
+    else:
+        best = find_maximum(evaluator, posterior.priors, settings, de_seed)
+        pos, lp = initial_ball(best, posterior.priors, n_walkers, settings.ball_scale, rng, evaluator)
+    return pos, lp, np.random.RandomState(emcee_seed).get_state()
+
+
+def run_sampler(posterior, settings: SamplerSettings, checkpoint_path, workers: int = 1,
+                resume: bool = False, config_digest: str = "", progress: bool | None = None) -> SamplerResult:
+    """Run (or continue) the ensemble sampler until convergence or ``settings.max_steps``.
+
+    Parameters
+    ----------
+    posterior : LogPosterior
+        Must offer ``ndim``, ``priors``, ``param_names`` and ``evaluate``.
+    settings : SamplerSettings
+    checkpoint_path : path
+        HDF5 checkpoint written every ``check_every`` steps.
+    workers : int
+        Processes evaluating the posterior.
+    resume : bool
+        Continue from ``checkpoint_path``.
+    config_digest : str
+        Digest of the configuration; a resume with a different one is refused.
+    """
+    t0 = time.perf_counter()
+    checkpoint_path = Path(checkpoint_path)
+    rule = ConvergenceRule(settings.tau_factor, settings.tau_rtol)
+    show = settings.progress if progress is None else progress
+    with EvaluationMap(posterior, workers) as evaluator:
+        if resume:
+            remove_stale_temporaries(checkpoint_path)
+            ck = read_checkpoint(checkpoint_path)
+            if ck.param_names != posterior.param_names or (config_digest and ck.config_digest != config_digest):
+                raise SamplerInterrupted(f"{checkpoint_path}: checkpoint was written by a different "
+                                         f"configuration; use --overwrite to start afresh")
+            evaluator.failures.update(ck.failures)
+            evaluator.n_evaluations = ck.n_evaluations
+            pos, lp, rstate = ck.chain[-1], ck.log_prob[-1], ck.random_state
+            chains, lps = [ck.chain], [ck.log_prob]
+            accepted = ck.accepted.astype(np.int64)
+            history = [row for row in ck.tau_history]
+            elapsed_before = ck.elapsed_s
+            n_done = ck.n_steps
+            converged = ck.converged
+        else:
+            pos, lp, rstate = start_state(posterior, settings, evaluator)
+            chains, lps, history = [], [], []
+            accepted = np.zeros(len(pos), dtype=np.int64)
+            elapsed_before, n_done, converged = 0.0, 0, False
+        resumed_from = n_done
+        n_walkers, ndim = pos.shape
+        sampler = emcee.EnsembleSampler(n_walkers, ndim, posterior, pool=evaluator)
+        t_sampling = time.perf_counter()
+        bar = _progress_bar(show, settings.max_steps, n_done)
+        tau = history[-1][1:] if history else np.full(ndim, np.nan)
+        try:
+            while n_done < settings.max_steps and not converged:
+                k = min(settings.check_every, settings.max_steps - n_done)
+                sampler.reset()
+                state = emcee.State(pos, log_prob=lp, random_state=rstate)
+                for state in sampler.sample(state, iterations=k, store=True):
+                    if bar is not None:
+                        bar.update(1)
+                chains.append(sampler.get_chain())
+                lps.append(sampler.get_log_prob())
+                accepted += sampler.backend.accepted.astype(np.int64)
+                pos, lp, rstate = state.coords.copy(), state.log_prob.copy(), sampler.random_state
+                n_done += k
+                chain = np.concatenate(chains)
+                chains, lps = [chain], [np.concatenate(lps)]
+                tau_prev = history[-1][1:] if history else None
+                tau = autocorr_time(chain)
+                converged = rule.converged(n_done, tau, tau_prev)
+                history.append(np.concatenate([[n_done], tau]))
+                ck = Checkpoint(posterior.param_names, chain, lps[0], accepted, rstate, np.array(history),
+                                config_digest, settings.seed, converged, dict(evaluator.failures),
+                                evaluator.n_evaluations,
+                                elapsed_before + time.perf_counter() - t0)
+                write_checkpoint(checkpoint_path, ck)
+                if bar is not None:
+                    bar.set_postfix(acc=f"{np.mean(accepted) / n_done:.2f}",
+                                    tau=f"{np.nanmax(tau):.1f}" if np.any(np.isfinite(tau)) else "nan")
+        finally:
+            if bar is not None:
+                bar.close()
+        if not chains:
+            raise UserError(f"{checkpoint_path}: max_steps={settings.max_steps} leaves nothing to sample")
+        if not converged:
+            warnings.warn(f"chain did not converge within {n_done} steps "
+                          f"(needs > {settings.tau_factor:g} τ = {settings.tau_factor * np.nanmax(tau):.0f} "
+                          f"steps and τ stable to {settings.tau_rtol:.0%}); raise max_steps and use --resume",
+                          RuntimeWarning, stacklevel=2)
+        return SamplerResult(
+            checkpoint=ck, converged=bool(converged), tau=np.asarray(tau, dtype=float),
+            acceptance_fraction=accepted / max(n_done, 1), n_evaluations=evaluator.n_evaluations,
+            failures=Counter(evaluator.failures), elapsed_s=elapsed_before + time.perf_counter() - t0,
+            sampling_s=time.perf_counter() - t_sampling, resumed_from=resumed_from)
+
+
+def _progress_bar(show: bool, total: int, initial: int):
+    if not show:
+        return None
+    from tqdm.auto import tqdm
+    return tqdm(total=total, initial=initial, desc="sampling", unit="step", dynamic_ncols=True)
