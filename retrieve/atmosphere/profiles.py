@@ -1,0 +1,222 @@
+"""Temperature–pressure (T–P) profiles.
+
+Each profile is a class with
+
+* ``parameter_names`` — list of parameter names it reads (see DEVELOPERS.md);
+* ``temperature(pressure_bar, params)`` — temperatures (K) at the given levels.
+
+It is built from the ``[model]`` options by ``Class.from_options(options, where)``
+and registered in :data:`PROFILES` under the name used by ``[model] profile``.
+"""
+from __future__ import annotations
+
+from collections.abc import Mapping, Sequence
+
+import numpy as np
+
+from ..constants import BAR_TO_DYN_CM2
+from ..errors import ConfigError
+
+
+class TPProfile:
+    """Base class: subclasses set ``parameter_names`` and implement ``temperature``."""
+
+    name = ""
+    parameter_names: list[str] = []
+    #: [model] keys (besides ``profile``) that this profile reads
+    option_keys: tuple[str, ...] = ()
+
+    @classmethod
+    def from_options(cls, options: Mapping, where: str) -> "TPProfile":
+        return cls()
+
+    def temperature(self, pressure_bar: np.ndarray, params: Mapping[str, float]) -> np.ndarray:
+        raise NotImplementedError
+
+
+class IsothermalProfile(TPProfile):
+    """T = ``t_iso`` at every level."""
+
+    name = "isothermal"
+    parameter_names = ["t_iso"]
+
+    def temperature(self, pressure_bar, params):
+        return np.full(np.shape(pressure_bar), float(params["t_iso"]))
+
+
+class GuillotProfile(TPProfile):
+    """Guillot (2010, A&A 520, A27) eq. 29, with τ = κ_IR P / g.
+
+    T⁴ = ¾ T_int⁴ (⅔ + τ) + ¾ T_irr⁴ f [⅔ + 1/(γ√3) + (γ/√3 − 1/(γ√3)) exp(−γ τ √3)]
+
+    Parameters ``t_int``, ``t_irr`` (K), ``log_kappa_ir`` (log10 κ_IR in cm² g⁻¹),
+    ``log_gamma`` (log10 of γ = κ_v/κ_IR) and ``log_g``.  ``f`` is fixed by
+    ``[model] guillot_f`` (default 0.25, the planet-wide average of the
+    irradiation; Guillot 2010 uses ½ for the day side, ⅔ for the substellar point).
+    """
+
+    name = "guillot"
+    parameter_names = ["t_int", "t_irr", "log_kappa_ir", "log_gamma", "log_g"]
+    option_keys = ("guillot_f",)
+    DEFAULT_F = 0.25
+
+    def __init__(self, f: float = DEFAULT_F):
+        self.f = float(f)
+
+    @classmethod
+    def from_options(cls, options, where):
+        f = options.get("guillot_f", cls.DEFAULT_F)
+        if isinstance(f, bool) or not isinstance(f, (int, float)) or not 0.0 < f <= 1.0:
+            raise ConfigError(f"{where}: key 'guillot_f' must be a number in (0, 1], got {f!r}")
+        return cls(f)
+
+    def temperature(self, pressure_bar, params):
+        tau = (10.0 ** params["log_kappa_ir"]) * np.asarray(pressure_bar) * (BAR_TO_DYN_CM2 / 10.0 ** params["log_g"])
+        gamma = 10.0 ** params["log_gamma"]
+        s3 = np.sqrt(3.0)
+        t_int4 = float(params["t_int"]) ** 4
+        t_irr4 = float(params["t_irr"]) ** 4
+        irr = 2.0 / 3.0 + 1.0 / (gamma * s3) + (gamma / s3 - 1.0 / (gamma * s3)) * np.exp(-gamma * tau * s3)
+        t4 = 0.75 * t_int4 * (2.0 / 3.0 + tau) + 0.75 * t_irr4 * self.f * irr
+        return np.sqrt(np.sqrt(t4))
+
+
+def _float_list(options: Mapping, key: str, where: str, minimum: int) -> np.ndarray:
+    value = options.get(key)
+    if value is None:
+        raise ConfigError(f"{where}: profile needs key {key!r} (list of pressures in bar)")
+    if not isinstance(value, (list, tuple)) or not all(
+            isinstance(v, (int, float)) and not isinstance(v, bool) for v in value):
+        raise ConfigError(f"{where}: key {key!r} must be a list of numbers, got {value!r}")
+    arr = np.asarray(value, dtype=np.float64)
+    if arr.size < minimum or np.any(~np.isfinite(arr)) or np.any(arr <= 0) or np.any(np.diff(arr) <= 0):
+        raise ConfigError(f"{where}: key {key!r} must hold at least {minimum} positive, strictly ascending pressures")
+    return arr
+
+
+def pchip_slopes(x: np.ndarray, y: np.ndarray) -> np.ndarray:
+    """Node derivatives of a monotone cubic Hermite interpolant (Fritsch & Carlson 1980, SIAM J. Numer. Anal. 17, 238).
+
+    Start from the three-point average of the secants, zero them at local
+    extrema and where a secant vanishes, then scale pairs so that
+    α² + β² ≤ 9 (their sufficient condition for monotonicity).
+    """
+    h = np.diff(x)
+    delta = np.diff(y) / h
+    m = np.empty_like(y)
+    m[0], m[-1] = delta[0], delta[-1]
+    m[1:-1] = 0.5 * (delta[:-1] + delta[1:])
+    m[1:-1][delta[:-1] * delta[1:] <= 0.0] = 0.0
+    for k in range(delta.size):  # a handful of knots: a loop is clearer than masks
+        if delta[k] == 0.0:
+            m[k] = m[k + 1] = 0.0
+            continue
+        a, b = m[k] / delta[k], m[k + 1] / delta[k]
+        if a < 0.0:
+            m[k] = a = 0.0
+        if b < 0.0:
+            m[k + 1] = b = 0.0
+        r = a * a + b * b
+        if r > 9.0:
+            t = 3.0 / np.sqrt(r)
+            m[k], m[k + 1] = t * a * delta[k], t * b * delta[k]
+    return m
+
+
+def pchip_evaluate(x: np.ndarray, y: np.ndarray, m: np.ndarray, xq: np.ndarray) -> np.ndarray:
+    """Cubic Hermite interpolation with node slopes ``m``; constant beyond the end nodes."""
+    xq = np.clip(xq, x[0], x[-1])
+    k = np.clip(np.searchsorted(x, xq, side="right") - 1, 0, x.size - 2)
+    h = x[k + 1] - x[k]
+    t = (xq - x[k]) / h
+    t2, t3 = t * t, t * t * t
+    return ((2 * t3 - 3 * t2 + 1) * y[k] + (t3 - 2 * t2 + t) * h * m[k]
+            + (-2 * t3 + 3 * t2) * y[k + 1] + (t3 - t2) * h * m[k + 1])
+
+
+class KnotsProfile(TPProfile):
+    """Free temperatures ``t_knot_i`` at ``knot_pressures_bar``.
+
+    Monotone piecewise-cubic (PCHIP, Fritsch–Carlson) interpolation in log10 P,
+    so the profile never overshoots the knot temperatures; constant beyond the
+    first and last knot.
+    """
+
+    name = "knots"
+    option_keys = ("knot_pressures_bar",)
+
+    def __init__(self, knot_pressures_bar: Sequence[float]):
+        self.knot_pressures_bar = np.asarray(knot_pressures_bar, dtype=np.float64)
+        self._x = np.log10(self.knot_pressures_bar)
+        self.parameter_names = [f"t_knot_{i}" for i in range(self._x.size)]
+
+    @classmethod
+    def from_options(cls, options, where):
+        return cls(_float_list(options, "knot_pressures_bar", where, minimum=2))
+
+    def temperature(self, pressure_bar, params):
+        y = np.array([params[n] for n in self.parameter_names], dtype=np.float64)
+        m = pchip_slopes(self._x, y)
+        return pchip_evaluate(self._x, y, m, np.log10(pressure_bar))
+
+
+class GradientProfile(TPProfile):
+    """T at the deepest level (``t_deep``) and constant d ln T / d ln P per band.
+
+    ``gradient_pressures_bar`` (n+1 ascending pressures) delimits n bands;
+    ``dlnt_dlnp_i`` is the gradient in band i (band 0 is the lowest-pressure
+    one).  The first and last band extend to the top and bottom of the
+    atmosphere.  Integrated upward from the deepest level:
+    ln T(P) = ln t_deep − ∫_{ln P}^{ln P_deep} (d ln T / d ln P) d ln P,
+    so T is an exact power law of P within each band.
+    """
+
+    name = "gradient"
+    option_keys = ("gradient_pressures_bar",)
+
+    def __init__(self, gradient_pressures_bar: Sequence[float]):
+        self.gradient_pressures_bar = np.asarray(gradient_pressures_bar, dtype=np.float64)
+        self._edges = np.log(self.gradient_pressures_bar)
+        n = self._edges.size - 1
+        self.parameter_names = ["t_deep"] + [f"dlnt_dlnp_{i}" for i in range(n)]
+        self._cache_key = None
+        self._weights = None
+
+    @classmethod
+    def from_options(cls, options, where):
+        return cls(_float_list(options, "gradient_pressures_bar", where, minimum=2))
+
+    def _band_lengths(self, pressure_bar: np.ndarray) -> np.ndarray:
+        """(n_levels, n_bands): length in ln P of each band between a level and the deepest level."""
+        key = (pressure_bar.size, float(pressure_bar[0]), float(pressure_bar[-1]))
+        if key == self._cache_key:
+            return self._weights
+        lnp = np.log(pressure_bar)
+        lo = np.concatenate(([-np.inf], self._edges[1:-1]))
+        hi = np.concatenate((self._edges[1:-1], [np.inf]))
+        top = np.maximum(lnp[:, None], lo[None, :])
+        bottom = np.minimum(lnp[-1], hi)[None, :]
+        self._weights = np.clip(bottom - top, 0.0, None)
+        self._cache_key = key
+        return self._weights
+
+    def temperature(self, pressure_bar, params):
+        pressure_bar = np.asarray(pressure_bar, dtype=np.float64)
+        grads = np.array([params[n] for n in self.parameter_names[1:]], dtype=np.float64)
+        return float(params["t_deep"]) * np.exp(-(self._band_lengths(pressure_bar) @ grads))
+
+
+#: ``[model] profile`` name -> profile class; add new profiles here (see DEVELOPERS.md).
+PROFILES: dict[str, type[TPProfile]] = {
+    cls.name: cls for cls in (IsothermalProfile, GuillotProfile, KnotsProfile, GradientProfile)
+}
+
+
+def build_profile(name: str, options: Mapping, where: str) -> TPProfile:
+    """Instantiate the profile registered as ``name`` from the ``[model]`` options."""
+    from ..config_keys import suggest
+
+    if name not in PROFILES:
+        raise ConfigError(f"{where}: unknown profile {name!r}{suggest(name, PROFILES)}; "
+                          f"choose one of {sorted(PROFILES)}")
+    return PROFILES[name].from_options(options, where)
