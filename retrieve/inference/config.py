@@ -128,7 +128,7 @@ class FitConfig:
     def model_spec(self):
         """The validated ``[model]`` as a :class:`retrieve.forward_model.ModelSpec`."""
         from ..forward_model import ModelSpec
-        return ModelSpec.from_mapping(self.model_mapping, f"{self.where} [model]")
+        return ModelSpec.from_mapping(self.model_mapping, f"{self.where} [model]", base_dir=self.base_dir)
 
     def dataset(self, name: str) -> DatasetConfig:
         for d in self.datasets:
