@@ -221,3 +221,26 @@ def test_cloud_registry():
     np.testing.assert_array_equal(clouds.CLOUD_MODELS["none"].optical_depth(np.geomspace(1e-3, 10, 5)), 0.0)
     tau = clouds.CLOUD_MODELS["grey"].optical_depth(np.array([1.0, 100.0]), log_p_cloud_top=0.0, cloud_tau_slope=1.0)
     np.testing.assert_allclose(tau, [0.0, 99.0])   # same definition
+
+
+def test_cia_single_temperature_table_and_zero_vmr():
+    table = OpacityTable(kind="cia", species="H2-H2", wavelength_um=[1.0, 2.0], temperature_K=[1000.0],
+                         log10_value=[[-46.0, -45.0]])
+    cia = CIAInterpolator(table, np.array([1.0, 1.5, 2.0]))
+    kappa = cia.opacity(np.array([300.0, 3000.0]), np.ones(2), np.array([0.8, 0.0]), np.full(2, 0.2), np.full(2, 2.3))
+    n = BAR_TO_DYN_CM2 / (K_B_CGS * 300.0)
+    # one temperature: k is that row everywhere; log-linear in λ between the table points (table.regrid_wavelength)
+    np.testing.assert_allclose(kappa[0], 10 ** np.array([-46.0, -45.5, -45.0]) * 0.8 * 0.2 * n / (2.3 * AMU_CGS),
+                               rtol=1e-6)
+    np.testing.assert_array_equal(kappa[1], 0.0)   # no partner, no absorption (definition α = k n_a n_b)
+
+
+def test_hminus_cold_and_hot_levels_are_finite():
+    wl = np.geomspace(0.3, 5.0, 50)
+    temperature = np.array([300.0, 1000.0, 12000.0])
+    pressure = np.array([1e-4, 1.0, 10.0])
+    vmr_h, vmr_e = hminus.thermal_h_and_electron_vmr(temperature, pressure)
+    kappa = hminus.hminus_opacity(wl, temperature, pressure, np.full(3, 2.3), vmr_h, vmr_e)
+    assert np.all(np.isfinite(kappa)) and np.all(kappa >= 0)
+    # H- matters in hot dense layers only (common practice, no source)
+    assert kappa[0].max() < 1e-20 < kappa[2].min()

@@ -53,8 +53,16 @@ class CIAInterpolator:
         self._temperature = np.asarray(table.temperature_K, dtype=np.float64)
         # float64 once at set-up so the hot path does no dtype conversions
         self._log10_k = np.asarray(regridded.log10_value, dtype=np.float64)
-        # wavelengths where the table has nothing (outside its range): exactly zero, not 10**floor
-        self._present = np.any(self._log10_k > LOG10_FLOOR, axis=0).astype(np.float64)
+        # Hot-path form: natural log and its T-differences, so evaluation is two gathers,
+        # one multiply-add and one exp.  Wavelengths where the table has nothing (outside
+        # its range) get ln k = -inf and zero slope: exactly zero opacity, not 10**floor.
+        absent = ~np.any(self._log10_k > LOG10_FLOOR, axis=0)
+        ln_k = self._log10_k * np.log(10.0)
+        slope = np.diff(ln_k, axis=0) if ln_k.shape[0] > 1 else np.zeros((1, ln_k.shape[1]))
+        slope[:, absent] = 0.0
+        ln_k[:, absent] = -np.inf
+        self._ln_k = ln_k
+        self._ln_k_step = slope
 
     @property
     def t_range(self) -> tuple[float, float]:
@@ -64,14 +72,10 @@ class CIAInterpolator:
     def log10_coefficient(self, temperature_K) -> np.ndarray:
         """log10 k(T) in cm⁵ molecule⁻², shape (n_levels, n_w), T clamped to :attr:`t_range`."""
         temperature = np.atleast_1d(np.asarray(temperature_K, dtype=np.float64))
-        t_axis = self._temperature
-        if t_axis.size == 1:
-            return np.broadcast_to(self._log10_k[0], (temperature.size, self._log10_k.shape[1])).copy()
-        t = np.clip(temperature, t_axis[0], t_axis[-1])
-        upper = np.clip(np.searchsorted(t_axis, t, side="right"), 1, t_axis.size - 1)
-        lower = upper - 1
-        weight = ((t - t_axis[lower]) / (t_axis[upper] - t_axis[lower]))[:, None]
-        return (1.0 - weight) * self._log10_k[lower] + weight * self._log10_k[upper]
+        lower, weight = self._bracket(temperature)
+        upper = np.minimum(lower + 1, self._log10_k.shape[0] - 1)
+        w = weight[:, None]
+        return (1.0 - w) * self._log10_k[lower] + w * self._log10_k[upper]
 
     def opacity(self, temperature_K, pressure_bar, vmr_a, vmr_b, mmw_amu) -> np.ndarray:
         """CIA mass opacity at each level.
@@ -87,8 +91,24 @@ class CIAInterpolator:
         ndarray (n_levels, n_w)
             κ in cm² g⁻¹.
         """
-        temperature = np.asarray(temperature_K, dtype=np.float64)
+        temperature = np.atleast_1d(np.asarray(temperature_K, dtype=np.float64))
         number_density = np.asarray(pressure_bar, dtype=np.float64) * BAR_TO_DYN_CM2 / (K_B_CGS * temperature)
         per_gram = (np.asarray(vmr_a) * np.asarray(vmr_b) * number_density
                     / (np.asarray(mmw_amu, dtype=np.float64) * AMU_CGS))
-        return 10.0 ** self.log10_coefficient(temperature) * self._present * per_gram[:, None]
+        lower, weight = self._bracket(temperature)
+        with np.errstate(divide="ignore"):
+            log_scale = np.log(per_gram)          # vmr = 0 gives -inf, i.e. zero opacity
+        kappa = self._ln_k_step[np.minimum(lower, self._ln_k_step.shape[0] - 1)]
+        kappa *= weight[:, None]
+        kappa += self._ln_k[lower]
+        kappa += log_scale[:, None]
+        return np.exp(kappa, out=kappa)
+
+    def _bracket(self, temperature: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
+        """Lower table index and fractional position of each (clamped) temperature."""
+        t_axis = self._temperature
+        if t_axis.size == 1:
+            return np.zeros(temperature.size, dtype=int), np.zeros(temperature.size)
+        t = np.clip(temperature, t_axis[0], t_axis[-1])
+        lower = np.clip(np.searchsorted(t_axis, t, side="right") - 1, 0, t_axis.size - 2)
+        return lower, (t - t_axis[lower]) / (t_axis[lower + 1] - t_axis[lower])

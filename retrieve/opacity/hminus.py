@@ -28,13 +28,13 @@ who do not provide them.
 """
 from __future__ import annotations
 
+import astropy.constants as _c
 import numpy as np
 
 from ..constants import AMU_CGS, BAR_TO_DYN_CM2, C2_CM_K, H_CGS, HE_TO_H2_SOLAR, K_B_CGS
-import astropy.constants as _c
 
-M_E_CGS = _c.m_e.cgs.value                 # electron mass, g
-EV_CGS = (1.0 * _c.e.si.value) * 1.0e7      # 1 eV in erg
+M_E_CGS = _c.m_e.cgs.value                 # electron mass, g (CODATA 2018 via astropy)
+EV_CGS = _c.e.si.value * 1.0e7              # 1 eV in erg
 
 HMINUS_THRESHOLD_UM = 1.6419               # John (1988), λ₀
 HMINUS_BINDING_EV = 0.754195               # Lykke, Murray & Lineberger (1991)
@@ -43,6 +43,8 @@ HMINUS_BINDING_EV = 0.754195               # Lykke, Murray & Lineberger (1991)
 _BF_C = np.array([152.519, 49.534, -118.858, 92.536, -34.194, 4.982])
 
 # John (1988) Table 3 free–free coefficients; rows n = 1..6, columns A, B, C, D, E, F.
+# (The two sets join continuously at 0.3645 µm and reproduce Bell & Berrington's
+# table; both are checked in tests/test_continuum.py.)
 # λ > 0.3645 µm:
 _FF_LONG = np.array([
     [0.0, 0.0, 0.0, 0.0, 0.0, 0.0],
@@ -109,15 +111,22 @@ def hminus_free_free_coefficient(wavelength_um, temperature_K) -> np.ndarray:
     """
     wl = np.atleast_1d(np.asarray(wavelength_um, dtype=np.float64))
     temperature = np.atleast_1d(np.asarray(temperature_K, dtype=np.float64))
+    return _ff_theta_powers(temperature) @ _ff_wavelength_matrix(wl)
+
+
+def _ff_theta_powers(temperature: np.ndarray) -> np.ndarray:
+    """θ^{(n+1)/2}, n = 1..6, shape (n_levels, 6), T clamped to the fit's range."""
     theta = 5040.0 / np.clip(temperature, *_FF_T_RANGE)
-    powers = theta[:, None] ** ((np.arange(1, 7) + 1) / 2.0)[None, :]       # (n_levels, 6)
+    return theta[:, None] ** ((np.arange(1, 7) + 1) / 2.0)[None, :]
+
+
+def _ff_wavelength_matrix(wl: np.ndarray) -> np.ndarray:
+    """(6, n_w) matrix M with k_ff = θ-powers @ M: the λ polynomials of John's fit, ×1e-29."""
     safe_wl = np.maximum(wl, _FF_MIN_UM)
     basis = np.stack([safe_wl ** 2, np.ones_like(safe_wl), 1 / safe_wl,
                       safe_wl ** -2, safe_wl ** -3, safe_wl ** -4])          # (6, n_w)
-    long = powers @ (_FF_LONG @ basis)
-    short = powers @ (_FF_SHORT @ basis)
-    k = 1.0e-29 * np.where(wl > _FF_SPLIT_UM, long, short)
-    return np.where(wl >= _FF_MIN_UM, k, 0.0)
+    matrix = np.where(wl > _FF_SPLIT_UM, _FF_LONG @ basis, _FF_SHORT @ basis)
+    return 1.0e-29 * np.where(wl >= _FF_MIN_UM, matrix, 0.0)
 
 
 def hminus_saha_factor(temperature_K) -> np.ndarray:
@@ -159,13 +168,18 @@ def hminus_opacity(wavelength_um, temperature_K, pressure_bar, mmw_amu, vmr_h, v
     n_h = np.asarray(vmr_h, dtype=np.float64) * number_density
     n_e = np.asarray(vmr_e, dtype=np.float64) * number_density
     electron_pressure = n_e * K_B_CGS * temperature
-    n_hminus = hminus_saha_factor(temperature) * n_h * n_e
-    # hc/(λ k T) with λ in cm = C2 [cm K] / (λ_µm 1e-4 T)
-    stimulated = -np.expm1(-C2_CM_K / (wl[None, :] * 1.0e-4 * temperature[:, None]))
-    bound_free = hminus_bound_free_cross_section(wl)[None, :] * stimulated * n_hminus[:, None]
-    free_free = hminus_free_free_coefficient(wl, temperature) * (electron_pressure * n_h)[:, None]
     density = pressure_cgs * np.asarray(mmw_amu, dtype=np.float64) * AMU_CGS / (K_B_CGS * temperature)
-    return (bound_free + free_free) / density[:, None]
+    # per-level factors first, so the (n_levels, n_w) work is one exp, one matmul and two passes
+    bf_level = hminus_saha_factor(temperature) * n_h * n_e / density
+    ff_level = electron_pressure * n_h / density
+    # hc/(λ k T) with λ in cm = C2 [cm K] / (λ_µm 1e-4 T); 1 - exp(-x) is the stimulated-emission factor
+    kappa = np.multiply.outer(1.0 / temperature, -C2_CM_K / (wl * 1.0e-4))
+    np.exp(kappa, out=kappa)
+    kappa -= 1.0
+    kappa *= -hminus_bound_free_cross_section(wl)
+    kappa *= bf_level[:, None]
+    kappa += (_ff_theta_powers(temperature) * ff_level[:, None]) @ _ff_wavelength_matrix(wl)
+    return kappa
 
 
 # ---------------------------------------------------------------------------

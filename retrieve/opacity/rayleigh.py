@@ -70,6 +70,7 @@ def rayleigh_opacity(wavelength_um, vmr_h2, vmr_he, mmw_amu) -> np.ndarray:
     """
     wl = np.atleast_1d(np.asarray(wavelength_um, dtype=np.float64))
     per_gram = 1.0 / (np.atleast_1d(np.asarray(mmw_amu, dtype=np.float64)) * AMU_CGS)
-    h2 = (np.atleast_1d(vmr_h2) * per_gram)[:, None] * h2_rayleigh_cross_section(wl)[None, :]
-    he = (np.atleast_1d(vmr_he) * per_gram)[:, None] * he_rayleigh_cross_section(wl)[None, :]
-    return h2 + he
+    abundances = np.column_stack([np.broadcast_to(vmr_h2, per_gram.shape) * per_gram,
+                                  np.broadcast_to(vmr_he, per_gram.shape) * per_gram])     # (n_levels, 2)
+    # one matrix product instead of two outer products and a sum (hot path)
+    return abundances @ np.stack([h2_rayleigh_cross_section(wl), he_rayleigh_cross_section(wl)])
