@@ -13,7 +13,9 @@ To keep few Doppler widths per plane (α_D ∝ ν), the grid is processed in
 segments of ``BuildGrid.segment_points`` points, each padded by the cut-off
 on both sides.  Width grids are global (w_k = exp(k h), h =
 ``BuildGrid.width_step``) so the Fourier transforms of the kernels are reused
-across segments and (T, P) points.
+across segments and (T, P) points.  The Doppler grid is finer
+(``BuildGrid.doppler_step``) than the Lorentz grid because blending two
+Gaussians of different width errs most in their steep tails.
 
 Normalisation: each sampled kernel is scaled so that Σ K Δν equals the area of
 the truncated profile, (2/π) arctan(c/γ_L); an unresolved (narrow) profile
@@ -36,14 +38,14 @@ _KERNEL_CACHE_SIZE = 400
 _OFF, _MUL = 10_000, 100_000
 
 
-def _kernel_fft(j_d: int, j_l: int, h: float, d: float, n_cut: int, n_fft: int) -> np.ndarray:
+def _kernel_fft(j_d: int, j_l: int, h_d: float, h: float, d: float, n_cut: int, n_fft: int) -> np.ndarray:
     """rfft of the truncated, normalised Voigt kernel for width-grid indices (j_d, j_l)."""
-    key = (j_d, j_l, h, d, n_cut, n_fft)
+    key = (j_d, j_l, h_d, h, d, n_cut, n_fft)
     hit = _KERNEL_CACHE.get(key)
     if hit is not None:
         _KERNEL_CACHE.move_to_end(key)
         return hit
-    ad, gl = np.exp(j_d * h), np.exp(j_l * h)
+    ad, gl = np.exp(j_d * h_d), np.exp(j_l * h)
     x = np.arange(-n_cut, n_cut + 1) * d
     kern = voigt(x, ad, gl)
     kern *= truncated_fraction(gl, n_cut * d) / (kern.sum() * d)
@@ -75,6 +77,7 @@ class FineGridAccumulator:
         self.nu = grid.fine_wavenumbers()
         self.d = grid.fine_resolution
         self.h = grid.width_step
+        self.h_d = grid.doppler_step
         self.i_first = int(round(self.nu[0] / self.d))
         self.n_cut = max(1, int(round(grid.wing_cutoff_cm / self.d)))
         self.seg = max(int(grid.segment_points), 4 * self.n_cut)
@@ -104,7 +107,7 @@ class FineGridAccumulator:
 
     def _bin(self, pos, strength, ad, gl) -> None:
         u = pos / self.d - self.i_first           # fractional index on the fine grid
-        jd, fd = _split_log(ad, self.h)
+        jd, fd = _split_log(ad, self.h_d)
         jl, fl = _split_log(gl, self.h)
         order = np.argsort(u, kind="stable")
         u, strength, jd, fd, jl, fl = (a[order] for a in (u, strength, jd, fd, jl, fl))
@@ -153,7 +156,7 @@ class FineGridAccumulator:
         for s, items in by_segment.items():
             acc = np.zeros(self.n_fft // 2 + 1, dtype=np.complex128)
             for jd, jl, plane in items:
-                acc += scipy.fft.rfft(plane, self.n_fft) * _kernel_fft(jd, jl, self.h, self.d, self.n_cut,
+                acc += scipy.fft.rfft(plane, self.n_fft) * _kernel_fft(jd, jl, self.h_d, self.h, self.d, self.n_cut,
                                                                       self.n_fft)
             conv = scipy.fft.irfft(acc, self.n_fft)
             start = s * self.seg
