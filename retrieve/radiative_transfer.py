@@ -115,22 +115,21 @@ def emission_flux(planck_levels: np.ndarray, dtau: np.ndarray, mu: np.ndarray, m
     n_layers, n_w = dtau.shape
     # Δ = 0 would give 0/0 in (1 - e^{-Δ})/Δ, whose limit is 1: floor dτ at a tiny value
     dtau = np.maximum(dtau, 1e-300)
-    # exponent arguments are capped at -700: beyond it exp underflows to denormals (a slow
-    # path in the vector exp) while the value, < 1e-304, no longer matters
-    cap = 700.0 * float(np.min(mu))
     tau_top = np.empty((n_layers, n_w))                         # vertical τ at each layer's top
     tau_top[0] = 0.0
     for i in range(1, n_layers):                                # faster than cumsum along axis 0
         np.add(tau_top[i - 1], dtau[i - 1], out=tau_top[i])
-    np.minimum(tau_top, cap, out=tau_top)
-    dtau_exp = np.minimum(dtau, cap)
     acc = np.zeros((n_layers, n_w))
     em = np.empty((n_layers, n_w))
     trans = np.empty((n_layers, n_w))
     for m, wm in zip(mu, mu_weights):
-        np.multiply(dtau_exp, -1.0 / m, out=em)
+        # exponent arguments are capped at -700: beyond it exp underflows to denormals (a slow
+        # path of the vector exp) while the value, < 1e-304, no longer matters
+        np.multiply(dtau, -1.0 / m, out=em)
+        np.maximum(em, -700.0, out=em)
         np.expm1(em, out=em)                                    # e^{-Δ} - 1, accurate for small Δ
         np.multiply(tau_top, -1.0 / m, out=trans)
+        np.maximum(trans, -700.0, out=trans)
         np.exp(trans, out=trans)                                # T_i = exp(-τ_i / μ)
         em *= trans
         # (1 - e^{-Δ})/Δ = -(e^{-Δ} - 1) μ / dτ; the 1/dτ is applied once after the loop

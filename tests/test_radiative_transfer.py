@@ -47,7 +47,8 @@ def _deep_grid(n_levels=120, tau_max=80.0):
     return tau, np.diff(tau)
 
 
-def test_linear_source_is_integrated_exactly():
+@pytest.mark.parametrize("n_mu", [3, 4, 16])
+def test_linear_source_is_integrated_exactly(n_mu):
     # For S = a + b τ in a semi-infinite atmosphere the emergent intensity is a + b μ
     # (Eddington–Barbier, exact for a linear source; Mihalas 1978, Stellar Atmospheres, §2-4),
     # so F = 2π ∫ (a + b μ) μ dμ = π a + 2π b / 3.
@@ -55,7 +56,7 @@ def test_linear_source_is_integrated_exactly():
     a, b = np.array([2.0, 0.5, 7.0]), np.array([3.0, 10.0, 0.0])
     planck = a[None, :] + b[None, :] * tau[:, None]
     dtau = np.repeat(dtau[:, None], 3, axis=1)
-    mu, w = gauss_legendre_mu(3)
+    mu, w = gauss_legendre_mu(n_mu)
     flux = emission_flux(planck, dtau, mu, w)
     expected = np.pi * a + 2.0 * np.pi * b / 3.0
     # residual e^{-80/μ_min} of the bottom boundary is far below the tolerance
