@@ -277,10 +277,6 @@ def check_parameters(config: FitConfig, model_parameters: Sequence[str]) -> None
     where = f"{config.where} [parameters]"
     expected = expected_parameters(model_parameters, config)
     given = {**config.fixed, **config.free}
-    for name in expected:
-        if name not in given:
-            raise ConfigError(f"{where}: missing parameter {name!r} needed by the model; give a number "
-                              f"(fixed) or a table with a prior (free)")
     for name in given:
         if name in expected:
             continue
@@ -291,6 +287,10 @@ def check_parameters(config: FitConfig, model_parameters: Sequence[str]) -> None
                 raise ConfigError(f"{where}: {name!r} is given but dataset {ds!r} has {switch} off; "
                                   f"set {switch} = true in its [[datasets]] entry or remove {name!r}")
         raise ConfigError(f"{where}: unknown parameter {name!r}{suggest(name, expected)}")
+    for name in expected:
+        if name not in given:
+            raise ConfigError(f"{where}: missing parameter {name!r} needed by the model; give a number "
+                              f"(fixed) or a table with a prior (free)")
     ndim = len(config.free)
     walkers = config.sampler.walkers
     if walkers and walkers < 2 * ndim:

@@ -48,14 +48,40 @@ PREDICTIVE_PERCENTILES = (2.5, 16.0, 50.0, 84.0, 97.5)
 
 
 class ForwardModelFactory:
-    """Picklable recipe building the :class:`~retrieve.forward_model.ForwardModel` for some datasets."""
+    """Picklable recipe building the :class:`~retrieve.forward_model.ForwardModel` for some datasets.
+
+    The opacity tables are loaded once (:meth:`opacity`) so that their
+    coverage can be checked against the configuration before the model is
+    assembled; they are not pickled (a worker process loads its own).
+    """
 
     def __init__(self, spec):
         self.spec = spec
+        self._opacity = None
+
+    def __getstate__(self):
+        return {"spec": self.spec, "_opacity": None}
+
+    def opacity(self):
+        """The model's :class:`~retrieve.opacity.opacity_set.OpacitySet` (loaded on first call)."""
+        if self._opacity is None:
+            from ..opacity.opacity_set import OpacitySet
+            kind = None if self.spec.opacity_kind == "auto" else self.spec.opacity_kind
+            self._opacity = OpacitySet.load(self.spec.absorbers, self.spec.cia, self.spec.opacity_dir, kind=kind)
+        return self._opacity
+
+    def coverage(self) -> dict:
+        """Coverage of the tables; temperature from the molecular tables only (CIA does not limit it)."""
+        opacity = self.opacity()
+        cov = opacity.coverage()
+        t = [tab.coverage()["temperature_K"] for tab in opacity.molecular.values()]
+        if t:
+            cov["temperature_K"] = (max(a for a, _ in t), min(b for _, b in t))
+        return cov
 
     def __call__(self, object_data):
         from ..forward_model import ForwardModel
-        return ForwardModel(self.spec, object_data.datasets)
+        return ForwardModel(self.spec, object_data.datasets, opacity=self.opacity())
 
 
 @dataclasses.dataclass
@@ -141,6 +167,9 @@ def build_posterior(config: FitConfig, object_data, model_factory=None):
     """
     if model_factory is None:
         model_factory = ForwardModelFactory(config.model_spec())
+    early = getattr(model_factory, "coverage", None)
+    if callable(early):      # check before assembling, so the message names the config key / dataset
+        check_coverage(config, _prefixed(config, early), object_data)
     try:
         model = model_factory(object_data)
     except ConfigError as exc:
@@ -153,6 +182,14 @@ def build_posterior(config: FitConfig, object_data, model_factory=None):
     post = LogPosterior(model_factory, object_data, config.free, config.fixed, noise)
     post._model = model
     return post, model
+
+
+def _prefixed(config, func):
+    try:
+        return func()
+    except ConfigError as exc:
+        msg = str(exc)
+        raise ConfigError(msg if msg.startswith(config.where) else f"{config.where}: {msg}") from None
 
 
 # --------------------------------------------------------------------------- post-processing
