@@ -5,6 +5,8 @@ import pytest
 import scipy.integrate
 import speclite.filters
 from astropy.modeling.models import BlackBody
+from hypothesis import given, settings
+from hypothesis import strategies as st
 
 from retrieve.errors import ConfigError, InputFileError, UserError
 from retrieve.instrument import (channel_edges, dataset_operator, gaussian_lsf_operator, model_bin_edges,
@@ -173,3 +175,25 @@ def test_photometry_exact_for_piecewise_linear_model():
     # Bessell & Murphy (2012) eq. A11 integrated with scipy.integrate.quad as reference
     assert (op @ flux)[0] == pytest.approx(num / den, rel=1e-8)
     assert op.sum() == pytest.approx(1.0, abs=1e-14)  # flat spectrum maps onto itself
+
+
+def test_lsf_rows_subset_equals_full_operator():
+    wl = np.geomspace(0.9, 2.0, 800)
+    full = gaussian_lsf_operator(wl, 45.0).toarray()
+    rows = np.array([3, 100, 101, 400, 799])
+    part = gaussian_lsf_operator(wl, 45.0, output_index=rows).toarray()
+    np.testing.assert_allclose(part[rows], full[rows], rtol=1e-13, atol=0)   # same construction, fewer rows
+    assert not np.any(np.delete(part, rows, axis=0))
+
+
+_GRID = np.geomspace(0.7, 2.4, 400)
+
+
+@settings(max_examples=25, deadline=None)
+@given(lower=st.floats(1.0, 1.7), width=st.floats(1e-4, 0.3), slope=st.floats(-5, 5),
+       resolving_power=st.one_of(st.none(), st.floats(20.0, 300.0)))
+def test_any_channel_reproduces_linear_spectra(lower, width, slope, resolving_power):
+    edges = np.array([[lower, lower + width], [1.75, 1.8]])
+    op = spectrum_operator(_spectrum(edges.mean(axis=1), resolving_power, edges), _GRID)
+    # channel mean of a linear function = value at the channel centre (common practice, no source)
+    np.testing.assert_allclose(op @ (1.0 + slope * _GRID), 1.0 + slope * edges.mean(axis=1), rtol=1e-10, atol=1e-10)

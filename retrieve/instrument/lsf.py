@@ -49,7 +49,8 @@ def _gaussian_segment_weights(mu, sigma, u, v, x0, x1):
     return ((x1 - mu) * i0 - i1) / h, ((mu - x0) * i0 + i1) / h
 
 
-def gaussian_lsf_operator(model_wavelength_um, resolving_power, resolving_power_wavelength_um=None) -> sp.csr_matrix:
+def gaussian_lsf_operator(model_wavelength_um, resolving_power, resolving_power_wavelength_um=None,
+                          output_index=None) -> sp.csr_matrix:
     """Convolution with a Gaussian LSF of FWHM λ/R, sampled back on the model grid.
 
     Row j gives the convolved spectrum at model wavelength λ_j: the integral
@@ -65,14 +66,18 @@ def gaussian_lsf_operator(model_wavelength_um, resolving_power, resolving_power_
         See :func:`resolving_power_at`.
     resolving_power_wavelength_um : ndarray, optional
         Wavelengths at which an array ``resolving_power`` is tabulated.
+    output_index : ndarray of int, optional
+        Compute only these rows (model points actually used downstream); the
+        other rows are empty.  Default: all.
 
     Returns
     -------
     scipy.sparse.csr_matrix (n_w, n_w)
     """
     grid = PiecewiseLinearGrid(model_wavelength_um)
-    mu = grid.wavelength_um
-    r = resolving_power_at(mu, resolving_power, resolving_power_wavelength_um)
+    out = np.arange(grid.n_w) if output_index is None else np.asarray(output_index, dtype=int)
+    r = resolving_power_at(grid.wavelength_um, resolving_power, resolving_power_wavelength_um)[out]
+    mu = grid.wavelength_um[out]
     if np.any(~np.isfinite(r)) or np.any(r <= 0):
         raise ValueError("resolving power must be positive and finite")
     sigma = lsf_sigma_um(mu, r)
@@ -83,5 +88,9 @@ def gaussian_lsf_operator(model_wavelength_um, resolving_power, resolving_power_
     u = np.clip(lo[rows], x0, x1)
     v = np.clip(hi[rows], x0, x1)
     w_left, w_right = _gaussian_segment_weights(mu[rows], sigma[rows], u, v, x0, x1)
-    return grid.to_matrix(np.concatenate([rows, rows]), np.concatenate([seg, seg + 1]),
-                          np.concatenate([w_left, w_right]), mu.size)
+    matrix = grid.to_matrix(np.concatenate([rows, rows]), np.concatenate([seg, seg + 1]),
+                            np.concatenate([w_left, w_right]), mu.size)
+    if output_index is None:
+        return matrix
+    placed = sp.coo_matrix(matrix)
+    return sp.csr_matrix((placed.data, (out[placed.row], placed.col)), shape=(grid.n_w, grid.n_w))

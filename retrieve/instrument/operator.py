@@ -121,7 +121,8 @@ def spectrum_operator(dataset, model_wavelength_um) -> sp.csr_matrix:
         return average
     r = np.atleast_1d(np.asarray(dataset.resolving_power, dtype=np.float64))
     at = None if r.size == 1 else dataset.wavelength_um
-    lsf = gaussian_lsf_operator(wl, r[0] if r.size == 1 else r, at)
+    used = np.unique(average.indices)           # model points the channel means read
+    lsf = gaussian_lsf_operator(wl, r[0] if r.size == 1 else r, at, output_index=used)
     return sp.csr_matrix(average @ lsf)
 
 
