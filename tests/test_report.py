@@ -104,3 +104,99 @@ def test_render_html_keeps_numbers_figures_and_caveats():
 def test_format_number(value, shown):
     # display rule of the report: 4 significant figures, scientific outside [1e-3, 1e5) (our convention)
     assert format_number(value) == shown
+
+
+# --------------------------------------------------------------------------- a real run folder (toy model)
+TOY_TRUTHS = {"coef_0": 0.5, "coef_1": 1.0}
+
+
+@pytest.fixture(scope="module")
+def toy_run(tmp_path_factory):
+    """A small but real run folder written by retrieve.inference.fit with the linear toy model."""
+    from retrieve.inference import fit, parse_config
+    from retrieve.inference.toymodel import LinearModelFactory
+    from retrieve.observations import Dataset
+    from retrieve.observations.writers import write_dataset
+
+    tmp = tmp_path_factory.mktemp("toyrun")
+    rng = np.random.default_rng(11)
+    x = np.linspace(1.0, 2.0, 30)
+    y = TOY_TRUTHS["coef_0"] + TOY_TRUTHS["coef_1"] * (x - 1.0) + rng.normal(0, 0.1, x.size)
+    write_dataset(Dataset("ifs", "spectrum", x, y, np.full(x.size, 0.1), meta={"truths": dict(TOY_TRUTHS)}),
+                  tmp / "toy.ecsv")
+    cfg = parse_config({
+        "object": {"name": "toy object"},
+        "parameters": {k: {"prior": "uniform", "low": -5.0, "high": 5.0} for k in TOY_TRUTHS},
+        "datasets": [{"name": "ifs", "file": str(tmp / "toy.ecsv")}],
+        "sampler": {"max_steps": 1500, "check_every": 500, "seed": 3, "progress": False,
+                    "optimiser_max_evaluations": 300}})
+    factory = LinearModelFactory(2)
+    fit(cfg, out_dir=tmp / "run", model_factory=factory)
+    return tmp / "run", factory
+
+
+@pytest.mark.slow
+def test_report_of_a_run_folder_matches_summary_files(toy_run):
+    import json
+
+    from retrieve.report.build import build_report
+
+    run_dir, factory = toy_run
+    path = build_report(run_dir, model_factory=factory)
+    assert path == run_dir / "report.html"
+    text = path.read_text(encoding="utf-8")
+    parsed = parse_report(text)
+    # promised sections: inputs, convergence, τ table, parameters, the two figures a toy model allows, caveats
+    for anchor in ("inputs", "table-convergence", "table-autocorrelation", "table-parameters",
+                   "fig-corner", "fig-spectrum", "caveats"):
+        assert anchor in parsed.ids, anchor
+    assert all(h[1:] in parsed.ids for h in parsed.links if h.startswith("#"))
+    assert parsed.external == [] and all(s.startswith("data:image/png;base64,") for s in parsed.images)
+    # figures a toy model cannot have are reported as not drawn, and identification as not run
+    assert "Figure 'profile' not drawn" in html.unescape(text)
+    assert "identification step was not run" in text
+    # parameter table equals summary.ecsv and summary.json exactly (full values in data-value)
+    summary = Table.read(run_dir / "summary.ecsv", format="ascii.ecsv")
+    quantities = json.loads((run_dir / "summary.json").read_text())["quantities"]
+    rows = table_as_dict(parsed, "parameters")
+    assert set(rows) == set(summary["name"])
+    for row in summary:
+        name = str(row["name"])
+        for col in ("median", "p2_5", "p16", "p84", "p97_5", "map"):
+            assert float(rows[name][col][1]) == float(row[col]) == quantities[name][col]
+        assert float(rows[name]["truth"][1]) == TOY_TRUTHS[name]
+    # convergence numbers equal the manifest
+    manifest = json.loads((run_dir / "manifest.json").read_text())
+    conv = table_as_dict(parsed, "convergence")
+    (only,) = conv.values()
+    assert int(only["n_steps"][1]) == manifest["convergence"]["n_steps"]
+    assert float(only["acceptance_fraction"][1]) == manifest["convergence"]["acceptance_fraction"]
+    taus = table_as_dict(parsed, "autocorrelation")
+    for name, tau in zip(manifest["param_names"], manifest["convergence"]["tau"]):
+        assert float(taus[name]["tau_steps"][1]) == tau
+        assert np.isclose(float(taus[name]["chain_length_over_tau"][1]), manifest["convergence"]["n_steps"] / tau)
+
+
+@pytest.mark.slow
+def test_truth_flags_follow_the_summary_intervals(toy_run):
+    # truth_in_95 is p2_5 <= truth <= p97_5 of summary.ecsv (definition of the central 95 % interval)
+    from retrieve.inference import load_run
+    from retrieve.report.build import parameter_table
+
+    run_dir, factory = toy_run
+    summary = Table.read(run_dir / "summary.ecsv", format="ascii.ecsv")
+    shifted = {"coef_0": TOY_TRUTHS["coef_0"], "coef_1": float(summary["p97_5"][1]) + 1.0}
+    table = parameter_table(load_run(run_dir, model_factory=factory), shifted)
+    for row, srow in zip(table, summary):
+        truth = shifted[str(srow["name"])]
+        assert bool(row["truth_in_95"]) == bool(srow["p2_5"] <= truth <= srow["p97_5"])
+    assert not table["truth_in_95"][1]  # a value above p97_5 is outside
+
+
+def test_report_cli_missing_run_folder_is_a_user_error(tmp_path, capsys):
+    from retrieve.cli.main import main
+
+    # exit code 2 and one line naming the file (the CLI contract of retrieve.errors.UserError)
+    assert main(["report", str(tmp_path / "nope")]) == 2
+    err = capsys.readouterr().err.strip().splitlines()
+    assert len(err) == 1 and "manifest.json" in err[0]

@@ -43,9 +43,10 @@ def plot_profile(pressure_bar, temperature_K, contribution=None, contribution_wa
         Ascending pressures (top of atmosphere first).
     temperature_K : ndarray (n_layers,) or (n_draws, n_layers)
         One profile, or posterior draws (then the median and envelopes are drawn).
-    contribution : ndarray (n_layers,) or (n_layers, n_wavelengths), optional
+    contribution : ndarray (n, ) or (n, n_wavelengths), optional
         Emission contribution function (any normalisation; each curve is
-        scaled to a peak of one).
+        scaled to a peak of one), per level (n = n_levels) or per layer
+        (n = n_levels − 1, drawn at the layers' geometric-mean pressures).
     contribution_wavelength_um : ndarray (n_wavelengths,), optional
         Needed for a 2-D contribution function; curves are averaged per band.
     truth_temperature_K : ndarray (n_layers,), optional
@@ -85,9 +86,10 @@ def plot_profile(pressure_bar, temperature_K, contribution=None, contribution_wa
         ax.legend(loc="lower left")
         if axc is not None:
             curves = _contribution_curves(contribution, contribution_wavelength_um)
+            pc = p if next(iter(curves.values())).size == p.size else np.sqrt(p[:-1] * p[1:])
             for i, (name, curve) in enumerate(curves.items()):
                 colour = style.INK if name == "all" else style.CYCLE[(i + 1) % len(style.CYCLE)]
-                axc.plot(curve, p, color=colour, lw=1.6 if name == "all" else 1.0,
+                axc.plot(curve, pc, color=colour, lw=1.6 if name == "all" else 1.0,
                          ls="-" if name == "all" else "--", label=name)
             axc.set_xlabel("contribution\n(normalised)")
             axc.set_xlim(0, 1.05)
