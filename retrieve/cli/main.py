@@ -20,6 +20,8 @@ COMMAND_MODULES = [
     "describe",
     "fit",
     "opacity",
+    "plot",
+    "report",
 ]
 
 
