@@ -19,6 +19,7 @@ from ..errors import UserError
 COMMAND_MODULES = [
     "describe",
     "fit",
+    "simulate",
     "opacity",
     "plot",
     "report",
