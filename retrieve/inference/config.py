@@ -10,6 +10,7 @@ Sections (see DEVELOPERS.md, "TOML configuration layout", and the
                   ``scale``, ``inflate_errors``, ``correlated_noise``
 ``[sampler]``     see :class:`retrieve.inference.sampler.SamplerSettings`
 ``[simulate]``    read by ``retrieve simulate`` only; ignored here
+``[survey]``      read by ``retrieve batch`` only (:mod:`retrieve.survey.batch`); ignored here
 
 Checks that need the model or the data (every model parameter fixed or free,
 nuisance parameters matching the dataset switches, priors inside the opacity
@@ -36,7 +37,7 @@ from .likelihood import NUISANCE_PREFIXES, nuisance_names
 from .priors import Gaussian, Prior, prior_from_mapping
 from .sampler import SamplerSettings
 
-TOP_KEYS = ("object", "model", "parameters", "datasets", "sampler", "simulate")
+TOP_KEYS = ("object", "model", "parameters", "datasets", "sampler", "simulate", "survey")
 DATASET_KEYS = ("name", "file", "covariance", "resolving_power", "kind", "scale", "inflate_errors",
                 "correlated_noise")
 SAMPLER_TYPES = {

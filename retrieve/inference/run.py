@@ -276,7 +276,7 @@ def _samples_table(post: LogPosterior, flat: np.ndarray, flat_lp: np.ndarray):
 # --------------------------------------------------------------------------- fit
 def fit(config, spectra=None, out_dir="run", workers: int = 1, max_steps: int | None = None,
         seed: int | None = None, resume: bool = False, overwrite: bool = False,
-        model_factory=None, progress: bool | None = None) -> RunResult:
+        model_factory=None, progress: bool | None = None, pool=None) -> RunResult:
     """Run a retrieval and write the run folder.
 
     Parameters
@@ -300,6 +300,9 @@ def fit(config, spectra=None, out_dir="run", workers: int = 1, max_steps: int | 
         (tests, notebooks); it must be picklable for ``workers > 1``.
     progress : bool, optional
         Show the progress bar (default: ``[sampler] progress``).
+    pool : object with ``map(func, iterable)``, optional
+        External pool for the posterior evaluations (e.g. an MPI pool); the
+        caller owns it.  ``workers`` is then only recorded in the manifest.
 
     Returns
     -------
@@ -330,7 +333,7 @@ def fit(config, spectra=None, out_dir="run", workers: int = 1, max_steps: int | 
     with warnings.catch_warnings(record=True) as caught:
         warnings.simplefilter("always", RuntimeWarning)
         res = run_sampler(post, config.sampler, out / rundir.CHAIN, workers=workers, resume=resume,
-                          config_digest=config.digest, progress=progress)
+                          config_digest=config.digest, progress=progress, pool=pool)
     for w in caught:
         warnings.warn_explicit(w.message, w.category, w.filename, w.lineno)
     return _finish(config, post, object_data, res, out, manifest, t_start, workers)

@@ -18,7 +18,10 @@ generator state), both in a fresh run and after ``resume``; a resumed run
 therefore reproduces the uninterrupted chain exactly.
 
 Parallelism: with ``workers > 1`` a :class:`multiprocessing.Pool` is started
-whose initialiser builds the forward model once per worker process.
+whose initialiser builds the forward model once per worker process.  An
+external ``pool`` (any object with ``map(func, iterable)`` returning results
+in input order, e.g. :class:`retrieve.survey.mpi_pool.MPIPool`) replaces it:
+it is handed ``posterior.evaluate`` and the points.
 """
 from __future__ import annotations
 
@@ -98,19 +101,22 @@ class EvaluationMap:
     posterior directly and keep the failure reasons, which emcee would drop.
     """
 
-    def __init__(self, posterior, workers: int = 1):
+    def __init__(self, posterior, workers: int = 1, pool=None):
         self.posterior = posterior
         self.workers = int(workers)
         self.failures: Counter = Counter()
         self.n_evaluations = 0
         self._pool = None
-        if self.workers > 1:
+        self._external = pool  # caller-owned (e.g. MPI); never closed here
+        if self.workers > 1 and pool is None:
             ctx = multiprocessing.get_context("fork")
             self._pool = ctx.Pool(self.workers, initializer=_init_worker, initargs=(posterior,))
 
     def evaluate(self, points) -> np.ndarray:
         points = [np.asarray(p, dtype=float) for p in points]
-        if self._pool is not None:
+        if self._external is not None:
+            results = list(self._external.map(self.posterior.evaluate, points))
+        elif self._pool is not None:
             results = self._pool.map(_worker_evaluate, points)
         else:
             results = [self.posterior.evaluate(p) for p in points]
@@ -234,7 +240,8 @@ def start_state(posterior, settings: SamplerSettings, evaluator: EvaluationMap):
 
 
 def run_sampler(posterior, settings: SamplerSettings, checkpoint_path, workers: int = 1,
-                resume: bool = False, config_digest: str = "", progress: bool | None = None) -> SamplerResult:
+                resume: bool = False, config_digest: str = "", progress: bool | None = None,
+                pool=None) -> SamplerResult:
     """Run (or continue) the ensemble sampler until convergence or ``settings.max_steps``.
 
     Parameters
@@ -250,12 +257,14 @@ def run_sampler(posterior, settings: SamplerSettings, checkpoint_path, workers: 
         Continue from ``checkpoint_path``.
     config_digest : str
         Digest of the configuration; a resume with a different one is refused.
+    pool : object with ``map``, optional
+        External pool evaluating ``posterior.evaluate`` (replaces ``workers``).
     """
     t0 = time.perf_counter()
     checkpoint_path = Path(checkpoint_path)
     rule = ConvergenceRule(settings.tau_factor, settings.tau_rtol)
     show = settings.progress if progress is None else progress
-    with EvaluationMap(posterior, workers) as evaluator:
+    with EvaluationMap(posterior, workers, pool=pool) as evaluator:
         if resume:
             remove_stale_temporaries(checkpoint_path)
             ck = read_checkpoint(checkpoint_path)
