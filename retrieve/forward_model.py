@@ -28,6 +28,7 @@ from .errors import ConfigError, ModelEvaluationError
 from .radiative_transfer import PlanckCache, emission_flux, gauss_legendre_mu
 
 DEFAULT_ANGLES = 4
+_VMR_SCALE = 1e20   # keeps float32 σ·VMR products well inside the normal float32 range
 CLOUD_MODELS = ("none", "grey")
 OPACITY_KINDS = ("auto", "cross_section", "ktable")
 _BASE_KEYS = ("absorbers", "profile", "cia", "hminus", "rayleigh", "cloud", "layers",
@@ -349,8 +350,10 @@ class ForwardModel:
             mixed = mix_random_overlap(np.moveaxis(sigma, 1, 0), vmr_levels.T, self.g_weights)
             kappa = mixed * per_gram[:, None, None]
         else:
-            mixed = np.matmul(vmr_levels[:, None, :].astype(np.float32), sigma)[:, 0, :]
-            kappa = np.multiply(mixed, per_gram[:, None])              # back to float64 from here on
+            # float32 product scaled by 1e20: σ·x can be ~1e-45, a denormal float32 (slow, imprecise)
+            scaled = (vmr_levels * _VMR_SCALE).astype(np.float32)
+            mixed = np.matmul(scaled[:, None, :], sigma)[:, 0, :]
+            kappa = np.multiply(mixed, (per_gram / _VMR_SCALE)[:, None])   # float64 from here on
         cont = self._continuum(t, comp)
         if cont is not None:
             kappa += cont[:, :, None] if kappa.ndim == 3 else cont

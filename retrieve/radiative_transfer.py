@@ -123,13 +123,14 @@ def emission_flux(planck_levels: np.ndarray, dtau: np.ndarray, mu: np.ndarray, m
     em = np.empty((n_layers, n_w))
     trans = np.empty((n_layers, n_w))
     for m, wm in zip(mu, mu_weights):
-        # exponent arguments are capped at -700: beyond it exp underflows to denormals (a slow
-        # path of the vector exp) while the value, < 1e-304, no longer matters
+        # exponent arguments are capped at -500 (e^-500 ~ 1e-217): below ~-708 exp, and the
+        # products that follow, become denormal floats (a slow path in the CPU) while the values
+        # no longer matter
         np.multiply(dtau, -1.0 / m, out=em)
-        np.maximum(em, -700.0, out=em)
+        np.maximum(em, -500.0, out=em)
         np.expm1(em, out=em)                                    # e^{-Δ} - 1, accurate for small Δ
         np.multiply(tau_top, -1.0 / m, out=trans)
-        np.maximum(trans, -700.0, out=trans)
+        np.maximum(trans, -500.0, out=trans)
         np.exp(trans, out=trans)                                # T_i = exp(-τ_i / μ)
         em *= trans
         # (1 - e^{-Δ})/Δ = -(e^{-Δ} - 1) μ / dτ; the 1/dτ is applied once after the loop

@@ -292,3 +292,17 @@ def test_full_continuum_model_runs(toy_set):
     # extra opacity in a T increasing inward atmosphere can only lower the emergent flux
     # (common practice, no source)
     assert np.all(with_cont <= bare * (1 + 1e-12)) and np.all(np.isfinite(with_cont))
+
+
+def test_tiny_vmr_and_cross_section_products_keep_precision():
+    # σ ~ 1e-31 cm² and VMR 1e-14: σ·x ~ 1e-45 would be a denormal float32; the model must keep
+    # the float64-reference value (common practice, no source: IEEE 754 float32 range)
+    table = grey_table("CO", WL, -31.0)
+    spec = ModelSpec.from_mapping({"absorbers": ["CO"], "profile": "isothermal", **NO_CONTINUUM})
+    model = ForwardModel(spec, [], OpacitySet.from_tables({"CO": table}))
+    params = base_params(["CO"], t_iso=1000.0, log_vmr_CO=-14.0)
+    t = model.profile.temperature(model.pressure_bar, params)
+    comp = model.chemistry.evaluate(params, t.size)
+    kappa = model._kappa(t, comp)
+    expected = 1e-31 * 1e-14 / (comp.mmw_amu * AMU_CGS)
+    np.testing.assert_allclose(kappa, np.broadcast_to(expected[:, None], kappa.shape), rtol=1e-5)
