@@ -29,7 +29,6 @@ from .radiative_transfer import PlanckCache, emission_flux, gauss_legendre_mu
 
 DEFAULT_ANGLES = 4
 _VMR_SCALE = 1e20   # keeps float32 σ·VMR products well inside the normal float32 range
-CLOUD_MODELS = ("none", "grey")
 OPACITY_KINDS = ("auto", "cross_section", "ktable")
 _BASE_KEYS = ("absorbers", "profile", "cia", "hminus", "rayleigh", "cloud", "layers",
               "pressure_range_bar", "angles", "opacity_dir", "opacity_kind")
@@ -55,7 +54,8 @@ class ModelSpec:
         Collision pairs, default ``["H2-H2", "H2-He"]``.
     hminus, rayleigh : bool
         H⁻ bound–free/free–free and H₂/He Rayleigh opacity, default True.
-    cloud : {"none", "grey"}
+    cloud : str
+        Key of :data:`retrieve.opacity.clouds.CLOUD_MODELS` (``"none"``, ``"grey"``).
     layers : int
         Number of pressure levels (default 80).
     pressure_range_bar : (float, float)
@@ -112,9 +112,12 @@ class ModelSpec:
         for pair in cia:
             if not isinstance(pair, str) or pair.count("-") != 1:
                 raise ConfigError(f"{where}: key 'cia' entries must look like 'H2-He', got {pair!r}")
+        from .opacity.clouds import CLOUD_MODELS
+
         cloud = expect_type(mapping.get("cloud", "none"), str, where, "cloud")
         if cloud not in CLOUD_MODELS:
-            raise ConfigError(f"{where}: key 'cloud' must be one of {CLOUD_MODELS}, got {cloud!r}{suggest(cloud, CLOUD_MODELS)}")
+            raise ConfigError(f"{where}: key 'cloud' must be one of {sorted(CLOUD_MODELS)}, got {cloud!r}"
+                              f"{suggest(cloud, CLOUD_MODELS)}")
         layers = expect_type(mapping.get("layers", DEFAULT_N_LEVELS), int, where, "layers")
         angles = expect_type(mapping.get("angles", DEFAULT_ANGLES), int, where, "angles")
         if not 1 <= angles <= 64:
@@ -236,6 +239,9 @@ class ForwardModel:
         self.molecular = MolecularOpacity(tables, self.pressure_bar, self.wavelength_um)
         self.g_weights = self.molecular.g_weights
         self._set_up_continua()
+        from .opacity.clouds import CLOUD_MODELS
+
+        self._cloud = CLOUD_MODELS[spec.cloud]
         self.mu, self.mu_weights = gauss_legendre_mu(spec.angles)
         self._planck = PlanckCache(self.wavelength_um)
         self.operators = self._operators()
@@ -254,6 +260,15 @@ class ForwardModel:
             if pair not in self.opacity.cia:
                 raise ConfigError(f"[model] cia: no table loaded for {pair}")
             self._cia.append((a, b, CIAInterpolator(self.opacity.cia[pair], self.wavelength_um)))
+        self._hminus = self._rayleigh = None
+        if self.spec.hminus:
+            from .opacity.hminus import hminus_opacity, thermal_h_and_electron_vmr
+
+            self._hminus = (hminus_opacity, thermal_h_and_electron_vmr)
+        if self.spec.rayleigh:
+            from .opacity.rayleigh import rayleigh_opacity
+
+            self._rayleigh = rayleigh_opacity
 
     def _operators(self) -> dict:
         if not self.datasets:
@@ -266,8 +281,9 @@ class ForwardModel:
         names = ["log_g", "radius_rjup", "distance_pc"]
         names += [n for n in self.profile.parameter_names if n not in names]
         names += self.chemistry.parameter_names
-        if self.spec.cloud == "grey":
-            names += ["log_p_cloud_top", "cloud_tau_slope"]
+        from .opacity.clouds import CLOUD_MODELS
+
+        names += [n for n in CLOUD_MODELS[self.spec.cloud].parameters if n not in names]
         return names
 
     def required_parameters(self) -> list[tuple[str, ...]]:
@@ -327,15 +343,12 @@ class ForwardModel:
         p, mmw, vmr = self.pressure_bar, comp.mmw_amu, comp.vmr
         for a, b, cia in self._cia:
             add(cia.opacity(t, p, vmr[a], vmr[b], mmw))
-        if self.spec.hminus:
-            from .opacity.hminus import hminus_opacity, thermal_h_and_electron_vmr
-
+        if self._hminus is not None:
+            hminus_opacity, thermal_h_and_electron_vmr = self._hminus
             vmr_h, vmr_e = thermal_h_and_electron_vmr(t, p)
             add(hminus_opacity(self.wavelength_um, t, p, mmw, vmr_h, vmr_e))
-        if self.spec.rayleigh:
-            from .opacity.rayleigh import rayleigh_opacity
-
-            add(rayleigh_opacity(self.wavelength_um, vmr["H2"], vmr["He"], mmw))
+        if self._rayleigh is not None:
+            add(self._rayleigh(self.wavelength_um, vmr["H2"], vmr["He"], mmw))
         return total
 
     def _kappa(self, t, comp) -> np.ndarray:
@@ -382,13 +395,12 @@ class ForwardModel:
         with np.errstate(over="ignore", under="ignore"):
             kappa = self._kappa(t, comp)
             dtau = layer_optical_depth(kappa, self.pressure_bar, gravity)
-            if self.spec.cloud == "grey":
-                from .opacity.clouds import grey_cloud_optical_depth
-
-                tau_c = grey_cloud_optical_depth(self.pressure_bar, values["log_p_cloud_top"],
-                                                 values["cloud_tau_slope"])
-                d = np.diff(tau_c).reshape((-1,) + (1,) * (dtau.ndim - 1))
-                dtau += d
+            if self._cloud.parameters:
+                tau_c = self._cloud.optical_depth(self.pressure_bar, **{n: values[n] for n in self._cloud.parameters})
+                d_cloud = np.diff(tau_c)
+                if not np.all(np.isfinite(d_cloud)) or np.any(d_cloud < 0):
+                    raise ModelEvaluationError("parameter out of range", "cloud optical depth not increasing with P")
+                dtau += d_cloud.reshape((-1,) + (1,) * (dtau.ndim - 1))
             result = self._radiate(t, dtau, contribution)
         flux_surface, contrib = result
         dilution = (values["radius_rjup"] * R_JUP_M / values["distance_m"]) ** 2

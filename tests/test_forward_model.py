@@ -306,3 +306,40 @@ def test_tiny_vmr_and_cross_section_products_keep_precision():
     kappa = model._kappa(t, comp)
     expected = 1e-31 * 1e-14 / (comp.mmw_amu * AMU_CGS)
     np.testing.assert_allclose(kappa, np.broadcast_to(expected[:, None], kappa.shape), rtol=1e-5)
+
+
+def test_datasets_set_the_window_and_get_their_points(toy_set):
+    from retrieve.instrument import required_wavelength_range
+    from retrieve.observations.dataset import Dataset
+
+    opac, species = toy_set
+    edges = np.geomspace(1.1, 1.8, 31)
+    spec_ds = Dataset(name="ifs", kind="spectrum", wavelength_um=np.sqrt(edges[1:] * edges[:-1]),
+                      flux=np.ones(30), uncertainty=np.ones(30), resolving_power=50.0,
+                      channel_edges_um=np.column_stack([edges[:-1], edges[1:]]))
+    spec = ModelSpec.from_mapping({"absorbers": species, "profile": "isothermal", **NO_CONTINUUM})
+    model = ForwardModel(spec, [spec_ds], opac)
+    lo, hi = required_wavelength_range(spec_ds)
+    wl = model.wavelength_um
+    # the grid covers the window with one grid point of margin on each side, and no more
+    assert wl[0] <= lo < wl[1] and wl[-2] < hi <= wl[-1]
+    out = model.evaluate(base_params(species, t_iso=1500.0))
+    bb = BlackBody(temperature=1500 * u.K, scale=1.0 * PER_UM / u.sr)
+    dil = ((1.2 * u.R_jup) / (20.0 * u.pc)).to_value(u.one) ** 2
+    ref = np.pi * bb(spec_ds.wavelength_um * u.um).to_value(PER_UM / u.sr) * dil
+    # an isothermal model is a smooth blackbody; LSF + channel averages move it by < 1e-3
+    # (astropy BlackBody; smoothing bound: common practice, no source)
+    np.testing.assert_allclose(out.per_dataset["ifs"], ref, rtol=1e-3)
+    wide = Dataset(name="wide", kind="spectrum", wavelength_um=np.array([0.5, 1.0, 2.0]), flux=np.ones(3),
+                   uncertainty=np.ones(3))
+    with pytest.raises(ConfigError, match="do not cover"):
+        ForwardModel(spec, [wide], opac)
+
+
+def test_bad_cloud_parameters_are_refused(toy_set):
+    opac, species = toy_set
+    spec = ModelSpec.from_mapping({"absorbers": species, "profile": "isothermal", "cloud": "grey", **NO_CONTINUUM})
+    model = ForwardModel(spec, [], opac)
+    with pytest.raises(ModelEvaluationError) as err:
+        model.evaluate(base_params(species, t_iso=1000.0, log_p_cloud_top=-1.0, cloud_tau_slope=-2.0))
+    assert err.value.reason == "parameter out of range"
