@@ -33,6 +33,9 @@ from .constants import C_SI, H_SI, K_B_SI
 _C1 = 2.0 * H_SI * C_SI ** 2 * 1.0e24       # W m² sr⁻¹ -> (µm)⁵ W m⁻² µm⁻¹ sr⁻¹ (1e30 µm⁵/m⁵ × 1e-6 m/µm)
 _C2 = H_SI * C_SI / K_B_SI * 1.0e6          # µm K
 _X_MAX = 700.0                              # keep expm1 finite; B is ~1e-300 of its peak there
+_TAU_CAP = 40.0                             # e^-40 = 4e-18: deeper layers are invisible from the top
+_EXP_ARG_MAX = 600.0                        # |exp argument| cap: no denormal results
+_THIN = 1.0e-5                              # slant Δ below which the thin-layer series is used
 
 
 def planck_lambda(wavelength_um: np.ndarray, temperature_K: np.ndarray) -> np.ndarray:
@@ -107,36 +110,44 @@ def emission_flux(planck_levels: np.ndarray, dtau: np.ndarray, mu: np.ndarray, m
 
         I(μ) = B_0 + Σ_i (B_{i+1} - B_i) T_i (1 - e^{-Δ_i}) / Δ_i ,
 
-    which needs one ``expm1`` and one ``exp`` per (μ, layer, λ) and no
-    recursion; ``contribution=True`` evaluates the layer terms themselves.
+    with T_i (1 - e^{-Δ_i}) = T_i - T_{i+1}: one ``exp`` per (μ, level, λ) and
+    no recursion (for Δ < 1e-5 the series T_i (1 - Δ/2) replaces the
+    difference, which would lose precision).  ``contribution=True``
+    evaluates the layer terms themselves.
     """
     if contribution:
         return _flux_by_layer(planck_levels, dtau, mu, mu_weights)
     n_layers, n_w = dtau.shape
-    # Δ = 0 would give 0/0 in (1 - e^{-Δ})/Δ, whose limit is 1: floor dτ at a tiny value
-    dtau = np.maximum(dtau, 1e-300)
-    tau_top = np.empty((n_layers, n_w))                         # vertical τ at each layer's top
-    tau_top[0] = 0.0
-    for i in range(1, n_layers):                                # faster than cumsum along axis 0
-        np.add(tau_top[i - 1], dtau[i - 1], out=tau_top[i])
+    # vertical τ at the levels; beyond τ = 40 every transmission is < 4e-18 for μ <= 1, so capping
+    # τ there changes nothing in double precision and keeps exp away from denormal results
+    tau = np.empty((n_layers + 1, n_w))
+    tau[0] = 0.0
+    for i in range(n_layers):                                   # faster than cumsum along axis 0
+        np.add(tau[i], dtau[i], out=tau[i + 1])
+    np.minimum(tau, _TAU_CAP, out=tau)
+    # the division uses the true dτ: only the (negligible) transmissions are capped
+    thin_all = dtau < _THIN * float(np.max(mu))                 # candidates for the thin-layer branch
+    any_thin = bool(thin_all.any())
+    inv_dtau = 1.0 / np.maximum(dtau, 1e-300)
     acc = np.zeros((n_layers, n_w))
-    em = np.empty((n_layers, n_w))
-    trans = np.empty((n_layers, n_w))
+    trans = np.empty((n_layers + 1, n_w))
+    ratio = np.empty((n_layers, n_w))
     for m, wm in zip(mu, mu_weights):
-        # exponent arguments are capped at -500 (e^-500 ~ 1e-217): below ~-708 exp, and the
-        # products that follow, become denormal floats (a slow path in the CPU) while the values
-        # no longer matter
-        np.multiply(dtau, -1.0 / m, out=em)
-        np.maximum(em, -500.0, out=em)
-        np.expm1(em, out=em)                                    # e^{-Δ} - 1, accurate for small Δ
-        np.multiply(tau_top, -1.0 / m, out=trans)
-        np.maximum(trans, -500.0, out=trans)
+        np.multiply(tau, -1.0 / m, out=trans)
+        if _TAU_CAP / m > _EXP_ARG_MAX:
+            np.maximum(trans, -_EXP_ARG_MAX, out=trans)
         np.exp(trans, out=trans)                                # T_i = exp(-τ_i / μ)
-        em *= trans
-        # (1 - e^{-Δ})/Δ = -(e^{-Δ} - 1) μ / dτ; the 1/dτ is applied once after the loop
-        em *= -2.0 * np.pi * wm * m * m
-        acc += em
-    acc /= dtau
+        # T_i (1 - e^{-Δ})/Δ = (T_i - T_{i+1}) μ / dτ; μ goes into the weight below
+        np.subtract(trans[:-1], trans[1:], out=ratio)
+        ratio *= inv_dtau
+        if any_thin:
+            # Δ < 1e-5: the difference loses precision (ε/Δ); T_i (1 - Δ/2) / μ is exact to Δ²/6 there
+            thin = thin_all & (dtau < _THIN * m)
+            if thin.any():
+                t_i = trans[:-1][thin]
+                ratio[thin] = t_i * (1.0 - 0.5 * dtau[thin] / m) / m
+        ratio *= 2.0 * np.pi * wm * m * m                       # 2π w μ (flux) × μ (from 1/Δ)
+        acc += ratio
     d_planck = planck_levels[1:] - planck_levels[:-1]
     # π B_0: the 2π Σ w μ of the constant term (Gauss-Legendre integrates μ exactly)
     return np.pi * planck_levels[0] + np.einsum("lw,lw->w", d_planck, acc)
