@@ -343,3 +343,20 @@ def test_bad_cloud_parameters_are_refused(toy_set):
     with pytest.raises(ModelEvaluationError) as err:
         model.evaluate(base_params(species, t_iso=1000.0, log_p_cloud_top=-1.0, cloud_tau_slope=-2.0))
     assert err.value.reason == "parameter out of range"
+
+
+def test_flat_k_distributions_equal_cross_sections():
+    # a k-table whose k(g) is flat in every bin is a monochromatic cross section, and random
+    # overlap of flat distributions is the plain VMR-weighted sum (Lacis & Oinas 1991, JGR 96, 9027)
+    species = ["H2O", "CH4"]
+    xs = {s: smooth_table(s, WL, i) for i, s in enumerate(species)}
+    kt = {}
+    for s, table in xs.items():
+        k = smooth_table(s, WL, 0, kind="ktable", n_g=4)
+        kt[s] = dataclasses.replace(k, log10_value=np.repeat(table.log10_value[..., None], 4, axis=-1))
+    mapping = {"absorbers": species, "profile": "guillot", **NO_CONTINUUM}
+    p = base_params(species, t_int=1000.0, t_irr=300.0, log_kappa_ir=-2.0, log_gamma=-0.3)
+    a = ForwardModel(ModelSpec.from_mapping(mapping), [], OpacitySet.from_tables(xs)).evaluate(p, contribution=True)
+    b = ForwardModel(ModelSpec.from_mapping(mapping), [], OpacitySet.from_tables(kt)).evaluate(p, contribution=True)
+    np.testing.assert_allclose(b.flux_highres, a.flux_highres, rtol=1e-6)
+    np.testing.assert_allclose(b.contribution, a.contribution, rtol=1e-5, atol=1e-12)

@@ -4,7 +4,7 @@ import numpy as np
 import pytest
 from astropy.modeling.physical_models import BlackBody
 
-from retrieve.errors import ConfigError
+from retrieve.errors import ConfigError, InputFileError
 from retrieve.opacity.table import OpacityTable, write_table
 from retrieve.simulate import correlated_covariance, simulate
 
@@ -163,3 +163,20 @@ def test_config_errors(opacity_dir):
     cfg = _config(opacity_dir, correlated_fraction=0.5)
     with pytest.raises(ConfigError, match="correlation_length_um"):
         simulate(cfg)
+
+
+def test_template_dataset_and_its_errors(opacity_dir, tmp_path):
+    from retrieve.simulate import write_simulation
+
+    first = simulate(_config(opacity_dir, channels=25))
+    template = tmp_path / "template.ecsv"
+    write_simulation(first, template)
+    cfg = _config(opacity_dir)
+    cfg["simulate"] = {"template": "template.ecsv", "seed": 1}        # no snr: the template's errors
+    res = simulate(cfg, base_dir=tmp_path)
+    d = res.datasets[0]
+    np.testing.assert_allclose(d.wavelength_um, first.datasets[0].wavelength_um, rtol=1e-12)
+    np.testing.assert_allclose(d.uncertainty, first.datasets[0].uncertainty, rtol=1e-12)
+    np.testing.assert_allclose(res.model_flux["sim"], first.model_flux["sim"], rtol=1e-10)   # same grid, same model
+    with pytest.raises(InputFileError, match="exists"):
+        write_simulation(first, template)
