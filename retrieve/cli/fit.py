@@ -26,14 +26,24 @@ def register(subparsers) -> None:
     parser.add_argument("--max-steps", type=int, metavar="N", help="override [sampler] max_steps")
     parser.add_argument("--seed", type=int, metavar="S", help="override [sampler] seed")
     parser.add_argument("--no-progress", action="store_true", help="hide the progress bar")
+    parser.add_argument("--mpi", action="store_true",
+                        help="spread walker evaluations over MPI ranks (run as mpiexec -n K retrieve fit ... "
+                             "--mpi); rank 0 writes the run folder")
     parser.set_defaults(func=run)
 
 
 def run(args: argparse.Namespace) -> int:
     logging.basicConfig(level=logging.WARNING, format="retrieve: %(message)s")
-    result = fit(args.config, spectra=args.spectra, out_dir=args.out, workers=args.workers,
-                 max_steps=args.max_steps, seed=args.seed, resume=args.resume, overwrite=args.overwrite,
-                 progress=False if args.no_progress else None)
+    kwargs = dict(spectra=args.spectra, out_dir=args.out, workers=args.workers, max_steps=args.max_steps,
+                  seed=args.seed, resume=args.resume, overwrite=args.overwrite,
+                  progress=False if args.no_progress else None)
+    if args.mpi:
+        from ..survey.mpi_pool import mpi_fit
+        result = mpi_fit(args.config, **kwargs)
+        if result is None:  # a worker rank: rank 0 reports
+            return 0
+    else:
+        result = fit(args.config, **kwargs)
     state = "converged" if result.converged else "NOT converged"
     print(f"{state} after {result.n_steps} steps × {result.n_walkers} walkers; "
           f"max τ = {max(result.tau):.1f}; acceptance {result.acceptance_fraction:.2f}; "
