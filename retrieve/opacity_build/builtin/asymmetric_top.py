@@ -119,11 +119,13 @@ def hamiltonian(const: WatsonConstants, j: int) -> np.ndarray:
     return h
 
 
+@functools.lru_cache(maxsize=256)
 def _wang_blocks(j: int):
-    """Wang transformation matrix and the four D2 blocks for one J.
+    """Wang transformation and the four D2 blocks for one J (cached; independent of constants).
 
     Returns ``(U, blocks)``: U has columns (|K> + s|-K>)/√2 (K = 0: |0>), and
-    ``blocks`` maps (Ka parity, s) to the column indices of U.
+    ``blocks`` is a list of (column indices, Ka labels, Kc labels), one per
+    D2 block, labels in rigid-rotor energy order.
     """
     n = 2 * j + 1
     u = np.zeros((n, n))
@@ -136,9 +138,17 @@ def _wang_blocks(j: int):
             else:
                 u[j + kabs, col] = 1.0 / np.sqrt(2.0)
                 u[j - kabs, col] = s / np.sqrt(2.0)
-            cols.setdefault((kabs % 2, s), []).append((col, kabs))
+            cols.setdefault((kabs % 2, s), []).append(col)
             col += 1
-    return u, cols
+    blocks = []
+    for (pa, s), idx in sorted(cols.items()):
+        # (-1)^Kc = s (-1)^(J+K): parity of Kc in this block
+        pc = (j + pa + (0 if s == 1 else 1)) % 2
+        labels = _labels_for_block(j, pa, pc)
+        if len(labels) != len(idx):
+            raise RuntimeError(f"label count mismatch at J={j} block {(pa, s)}")
+        blocks.append((np.array(idx), np.array([t[0] for t in labels]), np.array([t[1] for t in labels])))
+    return u, blocks
 
 
 def _labels_for_block(j: int, pa: int, pc: int):
@@ -152,32 +162,34 @@ def _labels_for_block(j: int, pa: int, pc: int):
     return labels
 
 
+def rotor_levels_many(consts, j_max: int, with_vectors: bool = True) -> list:
+    """:func:`rotor_levels` for several states at once (one stacked eigh per J and D2 block)."""
+    consts = list(consts)
+    per_state = [dict(energy=[], ka=[], kc=[], vectors=[]) for _ in consts]
+    for j in range(j_max + 1):
+        u, blocks = _wang_blocks(j)
+        h = np.stack([hamiltonian(c, j) for c in consts])
+        e_parts, v_parts = [], []
+        for idx, ka, kc in blocks:
+            ub = u[:, idx]
+            w, v = np.linalg.eigh(ub.T @ h @ ub)
+            e_parts.append(w)
+            v_parts.append(u[:, idx] @ v if with_vectors else None)
+        ka_j = np.concatenate([b[1] for b in blocks])
+        kc_j = np.concatenate([b[2] for b in blocks])
+        e_all = np.concatenate(e_parts, axis=1)
+        v_all = np.concatenate(v_parts, axis=2) if with_vectors else None
+        for i, st in enumerate(per_state):
+            st["energy"].append(e_all[i])
+            st["ka"].append(ka_j)
+            st["kc"].append(kc_j)
+            st["vectors"].append(v_all[i] if with_vectors else None)
+    return [RotorLevels(j_max=j_max, **st) for st in per_state]
+
+
 def rotor_levels(const: WatsonConstants, j_max: int, with_vectors: bool = True) -> RotorLevels:
     """Diagonalise the Hamiltonian for J = 0..j_max (one D2 block at a time)."""
-    energy, kas, kcs, vecs = [], [], [], []
-    for j in range(j_max + 1):
-        h = hamiltonian(const, j)
-        u, blocks = _wang_blocks(j)
-        hw = u.T @ h @ u
-        e_j, ka_j, kc_j, v_j = [], [], [], []
-        for (pa, s), members in sorted(blocks.items()):
-            idx = np.array([m[0] for m in members])
-            # (-1)^Kc = s (-1)^(J+K): parity of Kc in this block
-            pc = (j + pa + (0 if s == 1 else 1)) % 2
-            w, v = np.linalg.eigh(hw[np.ix_(idx, idx)])
-            labels = _labels_for_block(j, pa, pc)
-            if len(labels) != w.size:
-                raise RuntimeError(f"label count mismatch at J={j} block {(pa, s)}")
-            e_j.append(w)
-            ka_j.append(np.array([t[0] for t in labels]))
-            kc_j.append(np.array([t[1] for t in labels]))
-            if with_vectors:
-                v_j.append(u[:, idx] @ v)
-        energy.append(np.concatenate(e_j))
-        kas.append(np.concatenate(ka_j))
-        kcs.append(np.concatenate(kc_j))
-        vecs.append(np.concatenate(v_j, axis=1) if with_vectors else None)
-    return RotorLevels(j_max=j_max, energy=energy, ka=kas, kc=kcs, vectors=vecs)
+    return rotor_levels_many([const], j_max, with_vectors)[0]
 
 
 def clebsch_gordan_j2_1(j1: int, m1, q: int, j: int) -> np.ndarray:

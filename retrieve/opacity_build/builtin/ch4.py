@@ -261,7 +261,7 @@ def band_lines(band: dict, max_j: int):
 
 
 def line_list(max_j: int = 60, wn_min: float = 1500.0, wn_max: float = 13000.0,
-              min_strength: float = 1e-27, check_temperatures=(296.0, 1000.0, 2500.0),
+              min_strength: float = 1e-26, check_temperatures=(296.0, 1000.0, 3000.0),
               hot_bands: bool = True) -> LineList:
     """¹²CH₄ line list (strengths at 296 K, HITRAN form) from the pseudo-band model.
 

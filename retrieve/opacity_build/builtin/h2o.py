@@ -79,7 +79,7 @@ import numpy as np
 from ...constants import C2_CM_K, C_CGS, H_CGS, MASS_AMU
 from ..linelist import LineList
 from ..partition import register_partition_function
-from .asymmetric_top import WatsonConstants, honl_london, rotor_levels
+from .asymmetric_top import WatsonConstants, honl_london, rotor_levels, rotor_levels_many
 
 SPECIES = "H2O"
 ABUNDANCE = 0.997317
@@ -195,18 +195,23 @@ def _partition_states():
 @functools.lru_cache(maxsize=1)
 def _partition_levels():
     """Energies (cm⁻¹) and total degeneracies g_ns (2J+1) of all levels in Q."""
-    rot_cache = {}
+    states = _partition_states()
+    # rotational constants via α's are unreliable far up the bending ladder: cap v2 at 3
+    keys = sorted({(min(v[0], 2), min(v[1], 3), min(v[2], 2)) for v in states})
+    levels = rotor_levels_many([state_constants(k) for k in keys], J_MAX_PARTITION, with_vectors=False)
+    rot = {k: lev.flat() for k, lev in zip(keys, levels)}
     energies, degs = [], []
-    for v in _partition_states():
-        # rotational constants via α's are unreliable far up the bending ladder: cap v2 at 3
-        key = (min(v[0], 2), min(v[1], 3), min(v[2], 2))
-        if key not in rot_cache:
-            lev = rotor_levels(state_constants(key), J_MAX_PARTITION, with_vectors=False)
-            rot_cache[key] = lev.flat()
-        j, ka, kc, e = rot_cache[key]
+    for v in states:
+        j, ka, kc, e = rot[(min(v[0], 2), min(v[1], 3), min(v[2], 2))]
         energies.append(term_value(v) + e)
         degs.append((2 * j + 1) * spin_weight(v, ka, kc))
     return np.concatenate(energies), np.concatenate(degs)
+
+
+@functools.lru_cache(maxsize=4096)
+def _partition_scalar(t: float) -> float:
+    e, g = _partition_levels()
+    return float(np.sum(g * np.exp(-C2_CM_K * e / t)))
 
 
 def partition_function(temperature_K):
@@ -218,10 +223,8 @@ def partition_function(temperature_K):
     < 1e-5 of the population, so the truncation error is small against the
     model error of the effective Hamiltonian at high J.
     """
-    e, g = _partition_levels()
     t = np.asarray(temperature_K, dtype=np.float64)
-    tt = np.atleast_1d(t).ravel()
-    q = np.array([np.sum(g * np.exp(-C2_CM_K * e / ti)) for ti in tt])
+    q = np.array([_partition_scalar(float(ti)) for ti in np.atleast_1d(t).ravel()])
     return float(q[0]) if t.ndim == 0 else q.reshape(t.shape)
 
 
@@ -313,7 +316,7 @@ def _make_linelist(nu, el, s) -> LineList:
 
 
 def line_list(max_j: int = 25, wn_min: float = 1000.0, wn_max: float = 14000.0,
-              min_strength: float = 2e-27, check_temperatures=(296.0, 1000.0, 3000.0),
+              min_strength: float = 3e-26, check_temperatures=(296.0, 1000.0, 3000.0),
               hot_bands: bool = True) -> LineList:
     """H₂¹⁶O line list.
 
@@ -325,7 +328,9 @@ def line_list(max_j: int = 25, wn_min: float = 1000.0, wn_max: float = 14000.0,
         Wavenumber window, cm⁻¹.
     min_strength : float
         Keep a line if its strength exceeds this (cm molecule⁻¹) at any of
-        ``check_temperatures``.
+        ``check_temperatures``.  The default 3e-26 keeps ~3.7e5 lines and
+        drops < 0.02% of the total strength at 3000 K (0.14% in the
+        4500–4800 cm⁻¹ window), a negligible change of R = 1000 bin averages.
     hot_bands : bool
         Include bands from excited lower states.
 
