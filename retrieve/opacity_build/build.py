@@ -41,8 +41,12 @@ def _compute_point(task):
     grid: BuildGrid = _STATE["grid"]
     kinds = _STATE["kinds"]
     acc = FineGridAccumulator(grid, grid.temperatures_K[i_t], grid.pressures_bar[i_p])
-    for chunk in iter_chunks(_STATE["source"]):
-        acc.add(chunk)
+    source = _STATE["source"]
+    if isinstance(source, LineList):
+        acc.add(source, final=True)
+    else:
+        for chunk in iter_chunks(source):
+            acc.add(chunk)
     sigma = acc.finish()
     ranges = _STATE["ranges"]
     out = {}

@@ -30,12 +30,10 @@ import scipy.fft
 
 from .grid import BuildGrid
 from .linelist import LineList, iter_chunks
-from .profiles import doppler_hwhm, truncated_fraction, voigt
+from .profiles import doppler_hwhm, truncated_fraction, voigt_fast
 
 _KERNEL_CACHE: OrderedDict = OrderedDict()
 _KERNEL_CACHE_SIZE = 400
-# packing of (Doppler, Lorentz) width-grid indices into one integer code
-_OFF, _MUL = 10_000, 100_000
 
 
 def _kernel_fft(j_d: int, j_l: int, h_d: float, h: float, d: float, n_cut: int, n_fft: int) -> np.ndarray:
@@ -46,8 +44,8 @@ def _kernel_fft(j_d: int, j_l: int, h_d: float, h: float, d: float, n_cut: int, 
         _KERNEL_CACHE.move_to_end(key)
         return hit
     ad, gl = np.exp(j_d * h_d), np.exp(j_l * h)
-    x = np.arange(-n_cut, n_cut + 1) * d
-    kern = voigt(x, ad, gl)
+    half = voigt_fast(np.arange(n_cut + 1) * d, ad, gl)   # symmetric: evaluate x >= 0 only
+    kern = np.concatenate([half[:0:-1], half])
     kern *= truncated_fraction(gl, n_cut * d) / (kern.sum() * d)
     out = scipy.fft.rfft(kern, n_fft)
     _KERNEL_CACHE[key] = out
@@ -85,11 +83,17 @@ class FineGridAccumulator:
         self.n_ext = self.seg + 2 * self.n_cut
         self.n_fft = scipy.fft.next_fast_len(self.n_ext + 2 * self.n_cut, real=True)
         self.planes: dict[tuple[int, int, int], np.ndarray] = {}
+        self.sigma = np.zeros(self.nu.size)
         # widths below these floors are unresolved spikes anyway (kept normalised)
         self.floor_d, self.floor_l = 0.05 * self.d, 0.01 * self.d
 
-    def add(self, lines: LineList) -> None:
-        """Add one chunk of lines (any order)."""
+    def add(self, lines: LineList, final: bool = False) -> None:
+        """Add one chunk of lines (any order).
+
+        ``final=True`` promises that no more chunks follow: each segment is then
+        convolved as soon as it is binned and its planes are freed (bounded memory).
+        """
+        self._final = final
         if len(lines) == 0:
             return
         pos = lines.line_positions(self.p)
@@ -109,8 +113,9 @@ class FineGridAccumulator:
         u = pos / self.d - self.i_first           # fractional index on the fine grid
         jd, fd = _split_log(ad, self.h_d)
         jl, fl = _split_log(gl, self.h)
-        order = np.argsort(u, kind="stable")
-        u, strength, jd, fd, jl, fl = (a[order] for a in (u, strength, jd, fd, jl, fl))
+        if np.any(u[1:] < u[:-1]):  # build() pre-sorts in-memory line lists; chunks may not be
+            order = np.argsort(u, kind="stable")
+            u, strength, jd, fd, jl, fl = (a[order] for a in (u, strength, jd, fd, jl, fl))
         for s in range(self.n_seg):
             start = s * self.seg
             a, b = np.searchsorted(u, [start - self.n_cut, start + self.seg + self.n_cut])
@@ -118,53 +123,61 @@ class FineGridAccumulator:
                 continue
             self._bin_segment(s, u[a:b] - (start - self.n_cut), strength[a:b], jd[a:b], fd[a:b],
                               jl[a:b], fl[a:b])
+            if getattr(self, "_final", False):
+                self._convolve_segment(s)
 
     def _bin_segment(self, s, x, strength, jd, fd, jl, fl) -> None:
         i0 = np.floor(x).astype(np.int64)
         fx = x - i0
-        corners_w, corners_i, corners_code = [], [], []
+        jd_min, jl_min = int(jd.min()), int(jl.min())
+        n_l = int(jl.max()) - jl_min + 2
+        n_pairs = (int(jd.max()) - jd_min + 2) * n_l
+        base = ((jd - jd_min) * n_l + (jl - jl_min)) * self.n_ext + i0
+        weights, index = [], []
         for dd, wd in ((0, 1.0 - fd), (1, fd)):
+            swd = strength * wd
             for dl, wl in ((0, 1.0 - fl), (1, fl)):
-                code = (jd + dd + _OFF) * _MUL + (jl + dl + _OFF)
-                for dx, wx in ((0, 1.0 - fx), (1, fx)):
-                    corners_w.append(strength * wd * wl * wx)
-                    corners_i.append(i0 + dx)
-                    corners_code.append(code)
-        w = np.concatenate(corners_w)
-        idx = np.concatenate(corners_i)
-        code = np.concatenate(corners_code)
-        inside = (idx >= 0) & (idx < self.n_ext) & (w != 0)
-        w, idx, code = w[inside], idx[inside], code[inside]
-        codes, inv = np.unique(code, return_inverse=True)
-        hist = np.bincount(inv * self.n_ext + idx, weights=w,
-                           minlength=codes.size * self.n_ext).reshape(codes.size, self.n_ext)
-        for c, row in zip(codes, hist):
-            jd_c, jl_c = (v - _OFF for v in divmod(int(c), _MUL))
-            key = (s, jd_c, jl_c)
+                swdl = swd * wl
+                off = (dd * n_l + dl) * self.n_ext
+                weights += [swdl * (1.0 - fx), swdl * fx]
+                index += [base + off, base + off + 1]
+        idx = np.concatenate(index)
+        w = np.concatenate(weights)
+        # points past the padded segment (line at its very end) are dropped
+        ok = (idx >= 0) & (idx < n_pairs * self.n_ext)
+        hist = np.bincount(idx[ok], weights=w[ok], minlength=n_pairs * self.n_ext).reshape(n_pairs, self.n_ext)
+        used = np.flatnonzero(hist.any(axis=1))
+        for p in used:
+            key = (s, jd_min + int(p) // n_l, jl_min + int(p) % n_l)
             plane = self.planes.get(key)
             if plane is None:
-                self.planes[key] = row
+                self.planes[key] = hist[p].copy()
             else:
-                plane += row
+                plane += hist[p]
+
+    def _convolve_segment(self, s: int) -> None:
+        """Convolve and sum the planes of segment ``s`` into :attr:`sigma`, then free them."""
+        keys = [k for k in self.planes if k[0] == s]
+        if not keys:
+            return
+        acc = np.zeros(self.n_fft // 2 + 1, dtype=np.complex128)
+        for key in keys:
+            _, jd, jl = key
+            plane = self.planes.pop(key)
+            acc += scipy.fft.rfft(plane, self.n_fft) * _kernel_fft(jd, jl, self.h_d, self.h, self.d, self.n_cut,
+                                                                  self.n_fft)
+        conv = scipy.fft.irfft(acc, self.n_fft)
+        start = s * self.seg
+        n = min(self.seg, self.nu.size - start)
+        # plane index m + n_cut is segment point m; the kernel centre sits at n_cut
+        self.sigma[start:start + n] += conv[2 * self.n_cut:2 * self.n_cut + n]
 
     def finish(self) -> np.ndarray:
         """Cross sections σ on :meth:`BuildGrid.fine_wavenumbers`, cm² molecule⁻¹."""
-        sigma = np.zeros(self.nu.size)
-        by_segment: dict[int, list] = {}
-        for (s, jd, jl), plane in self.planes.items():
-            by_segment.setdefault(s, []).append((jd, jl, plane))
-        for s, items in by_segment.items():
-            acc = np.zeros(self.n_fft // 2 + 1, dtype=np.complex128)
-            for jd, jl, plane in items:
-                acc += scipy.fft.rfft(plane, self.n_fft) * _kernel_fft(jd, jl, self.h_d, self.h, self.d, self.n_cut,
-                                                                      self.n_fft)
-            conv = scipy.fft.irfft(acc, self.n_fft)
-            start = s * self.seg
-            n = min(self.seg, self.nu.size - start)
-            # plane index m + n_cut is segment point m; the kernel centre sits at n_cut
-            sigma[start:start + n] = conv[2 * self.n_cut:2 * self.n_cut + n]
-        np.maximum(sigma, 0.0, out=sigma)  # FFT round-off can leave tiny negatives far from lines
-        return sigma
+        for s in sorted({k[0] for k in self.planes}):
+            self._convolve_segment(s)
+        np.maximum(self.sigma, 0.0, out=self.sigma)  # FFT round-off can leave tiny negatives far from lines
+        return self.sigma
 
 
 def fine_cross_sections(line_source, grid: BuildGrid, temperature_K: float, pressure_bar: float):
@@ -179,6 +192,9 @@ def fine_cross_sections(line_source, grid: BuildGrid, temperature_K: float, pres
     wavenumber_cm, sigma_cm2 : ndarray
     """
     acc = FineGridAccumulator(grid, temperature_K, pressure_bar)
-    for chunk in iter_chunks(line_source):
-        acc.add(chunk)
+    if isinstance(line_source, LineList):
+        acc.add(line_source, final=True)
+    else:
+        for chunk in iter_chunks(line_source):
+            acc.add(chunk)
     return acc.nu, acc.finish()

@@ -45,3 +45,25 @@ def truncated_fraction(lorentz_hwhm_cm, cutoff_cm: float):
     ∫_{-c}^{c} γ/π/(x²+γ²) dx = (2/π) arctan(c/γ).
     """
     return (2.0 / np.pi) * np.arctan(cutoff_cm / np.maximum(lorentz_hwhm_cm, 1e-300))
+
+
+def voigt_fast(x, doppler_hwhm_cm, lorentz_hwhm_cm, switch: float = 30.0):
+    """Voigt profile, exact (Faddeeva) near the core and asymptotic in the wings.
+
+    Where max(|x|, γ) > ``switch`` σ the profile is the Lorentzian plus its
+    second-order Gaussian correction, V ≈ L + (σ²/2) L'' (the Gaussian
+    convolution expanded in σ², e.g. Armstrong 1967, JQSRT 7, 61), with
+    L'' = 2γ(3x² − γ²) / (π (x² + γ²)³); the neglected O(σ⁴/x⁴) terms stay below 3e-5
+    relative there.  Much faster than :func:`voigt` on long kernels.
+    """
+    x = np.asarray(x, dtype=np.float64)
+    ad, gl = float(doppler_hwhm_cm), float(lorentz_hwhm_cm)
+    sigma = ad / SQRT_2LN2
+    if gl <= 0 or ad <= 0:
+        return voigt(x, ad, gl)
+    r2 = x * x + gl * gl
+    out = gl / np.pi / r2 + sigma * sigma * gl * (3 * x * x - gl * gl) / (np.pi * r2 ** 3)
+    core = np.maximum(np.abs(x), gl) <= switch * sigma
+    if np.any(core):
+        out[core] = voigt(x[core], ad, gl)
+    return out
