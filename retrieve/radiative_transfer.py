@@ -126,8 +126,10 @@ def emission_flux(planck_levels: np.ndarray, dtau: np.ndarray, mu: np.ndarray, m
         np.add(tau[i], dtau[i], out=tau[i + 1])
     np.minimum(tau, _TAU_CAP, out=tau)
     # the division uses the true dτ: only the (negligible) transmissions are capped
-    thin_all = dtau < _THIN * float(np.max(mu))                 # candidates for the thin-layer branch
-    any_thin = bool(thin_all.any())
+    # candidates for the thin-layer branch, found once (flat indices; usually a small set)
+    dtau_flat = np.ascontiguousarray(dtau).ravel()
+    cand = np.flatnonzero(dtau_flat < _THIN * float(np.max(mu)))
+    d_cand = dtau_flat[cand]
     inv_dtau = 1.0 / np.maximum(dtau, 1e-300)
     acc = np.zeros((n_layers, n_w))
     trans = np.empty((n_layers + 1, n_w))
@@ -140,12 +142,11 @@ def emission_flux(planck_levels: np.ndarray, dtau: np.ndarray, mu: np.ndarray, m
         # T_i (1 - e^{-Δ})/Δ = (T_i - T_{i+1}) μ / dτ; μ goes into the weight below
         np.subtract(trans[:-1], trans[1:], out=ratio)
         ratio *= inv_dtau
-        if any_thin:
+        if cand.size:
             # Δ < 1e-5: the difference loses precision (ε/Δ); T_i (1 - Δ/2) / μ is exact to Δ²/6 there
-            thin = thin_all & (dtau < _THIN * m)
-            if thin.any():
-                t_i = trans[:-1][thin]
-                ratio[thin] = t_i * (1.0 - 0.5 * dtau[thin] / m) / m
+            sel = d_cand < _THIN * m
+            idx = cand[sel]
+            ratio.ravel()[idx] = trans[:-1].ravel()[idx] * (1.0 - 0.5 * d_cand[sel] / m) / m
         ratio *= 2.0 * np.pi * wm * m * m                       # 2π w μ (flux) × μ (from 1/Δ)
         acc += ratio
     d_planck = planck_levels[1:] - planck_levels[:-1]
