@@ -131,7 +131,7 @@ def _wavefunctions(label: str):
     mu = reduced_mass(label)
     y = dunham_coefficients(label)
     potential, r_e = rkr_potential(y, mu)
-    r_grid = np.linspace(0.78, 1.95, 260)
+    r_grid = np.linspace(0.82, 1.80, 180)  # sinc-DVR step 0.0055 Å: >10 points per wavelength at v = 9
     psi = rovibrational_wavefunctions(potential, mu, r_grid, J_MAX + 1, V_LOWER_MAX + max(DELTA_V) + 1)
     return r_grid, r_e, psi
 
