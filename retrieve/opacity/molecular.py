@@ -19,6 +19,7 @@ an evaluation.  Values below ~1e-37 cm² (the table floor) become exactly 0.  Te
 """
 from __future__ import annotations
 
+import dataclasses
 from collections.abc import Sequence
 
 import numpy as np
@@ -48,9 +49,9 @@ def pressure_weights(table_pressure_bar: np.ndarray, pressure_bar: np.ndarray):
     return i, w
 
 
-def _on_levels(table: OpacityTable, pressure_bar: np.ndarray, wl_index: np.ndarray) -> np.ndarray:
+def _on_levels(table: OpacityTable, pressure_bar: np.ndarray) -> np.ndarray:
     """Table values (log10) on the model levels: (n_levels, n_T, n_w[, n_g]) float64."""
-    data = np.asarray(table.log10_value[:, :, wl_index], dtype=np.float64)
+    data = np.asarray(table.log10_value, dtype=np.float64)
     i, w = pressure_weights(table.pressure_bar, pressure_bar)
     shape = (-1,) + (1,) * (data.ndim - 1)
     upper = data[np.minimum(i + 1, data.shape[0] - 1)]
@@ -124,7 +125,7 @@ class MolecularOpacity:
         on_levels = []
         for s, table in enumerate(tables):
             table = self._on_model_grid(table)
-            on_levels.append(_on_levels(table, self.pressure_bar, np.arange(n_w)))
+            on_levels.append(_on_levels(table, self.pressure_bar))
             groups.setdefault(tuple(table.temperature_K), []).append(s)
         self._groups = [_TemperatureGroup(np.array(t), members, [on_levels[m] for m in members],
                                           tables[members[0]].label) for t, members in groups.items()]
@@ -142,13 +143,11 @@ class MolecularOpacity:
             if not np.allclose(table.wavelength_um[idx], wl, rtol=1e-9, atol=0.0):
                 raise OpacityTableError(f"{table.label}: k-table bins differ from the model's; "
                                         "build all k-tables on the same bins")
-            import dataclasses
             return dataclasses.replace(table, log10_value=table.log10_value[:, :, idx], wavelength_um=wl,
                                        wavelength_edges_um=table.wavelength_edges_um[np.r_[idx, idx[-1] + 1]])
         idx = np.searchsorted(table.wavelength_um, wl)
         idx = np.clip(idx, 0, table.wavelength_um.size - 1)
         if np.array_equal(table.wavelength_um[idx], wl):  # same grid: a cut, no resampling
-            import dataclasses
             return dataclasses.replace(table, log10_value=table.log10_value[:, :, idx], wavelength_um=wl,
                                        wavelength_edges_um=None)
         return regrid_wavelength(table, wl)
