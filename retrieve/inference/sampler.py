@@ -60,7 +60,7 @@ class SamplerSettings:
     burn_in: int | None = None
     thin: int | None = None
     optimiser: str = "differential-evolution"
-    optimiser_max_evaluations: int = 20000
+    optimiser_max_evaluations: int = 10000
     optimiser_popsize: int = 10
     ball_scale: float = 1e-3
     predictive_draws: int = 200
