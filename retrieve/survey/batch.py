@@ -30,20 +30,18 @@ does not stop the others.
 
 ``[survey]`` keys (all optional; in the fit TOML, ignored by ``retrieve fit``):
 
-================  ============================================================
-``cluster``       ``"local"`` (default), ``"slurm"`` or ``"pbs"``
-``workers``       local: worker processes (default: CPU count); slurm/pbs: jobs
-``scheduler``     address of a running Dask scheduler (as ``--scheduler``)
-``queue``         batch queue / partition
-``account``       account / project charged
-``walltime``      job wall time, e.g. ``"02:00:00"``
-``cores_per_job`` cores of one job (default 1; one single-threaded worker per job)
-``memory_per_job`` memory of one job, e.g. ``"4GB"`` (default ``"2GB"``)
-``job_directives`` extra ``#SBATCH`` / ``#PBS`` lines (list of strings)
-``job_setup``     shell lines run before the worker starts (list of strings)
-``python``        interpreter on the compute nodes (default: this one)
-``scratch_dir``   node-local folder for worker spill files
-================  ============================================================
+* ``cluster``: ``"local"`` (default), ``"slurm"`` or ``"pbs"``
+* ``workers``: local: worker processes (default: CPU count); slurm/pbs: jobs
+* ``scheduler``: address of a running Dask scheduler (as ``--scheduler``)
+* ``queue``: batch queue / partition
+* ``account``: account / project charged
+* ``walltime``: job wall time, e.g. ``"02:00:00"``
+* ``cores_per_job``: cores of one job (default 1); one single-threaded worker per core
+* ``memory_per_job``: memory of one job, e.g. ``"4GB"`` (default ``"2GB"``)
+* ``job_directives``: extra ``#SBATCH`` / ``#PBS`` lines (list of strings)
+* ``job_setup``: shell lines run before the worker starts (list of strings)
+* ``python``: interpreter on the compute nodes (default: this one)
+* ``scratch_dir``: node-local folder for worker spill files
 """
 from __future__ import annotations
 
@@ -285,11 +283,10 @@ def jobqueue_cluster(settings: SurveySettings):
 
 def jobqueue_options(settings: SurveySettings) -> dict:
     """Keyword arguments for dask-jobqueue's cluster classes from our ``[survey]`` keys."""
-    kw = {"cores": settings.cores_per_job, "processes": 1, "memory": settings.memory_per_job,
+    # one single-threaded worker process per core: each task is one single-process fit
+    kw = {"cores": settings.cores_per_job, "processes": settings.cores_per_job, "memory": settings.memory_per_job,
           "job_extra_directives": list(settings.job_directives), "job_script_prologue": list(settings.job_setup),
-          "python": settings.python or sys.executable,
-          # one thread per worker: each task is one single-process fit
-          "worker_extra_args": ["--nthreads", "1"]}
+          "python": settings.python or sys.executable}
     for ours, theirs in (("queue", "queue"), ("walltime", "walltime"), ("scratch_dir", "local_directory")):
         if getattr(settings, ours):
             kw[theirs] = getattr(settings, ours)
