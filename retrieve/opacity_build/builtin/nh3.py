@@ -25,9 +25,16 @@ Method
   Degenerate vibrational states are given the same rule (approximation).
 * **Intensities**: S = (8π³/3hc) ν |R|² g_ns A_HL e^{-c2 E''/T}
   (1 - e^{-c2 ν/T}) / Q(T), symmetric-top Hönl–London factors, |R|² per
-  band from its literature strength S_band(296 K); hot bands from the
-  v2 = 1 and v2 = 2 inversion pairs with unchanged |R|² (harmonic spectator
-  mode; common practice, no source).  Abundance-weighted, ¹⁴NH₃ abundance
+  band from its literature strength S_band(296 K); hot bands from every
+  vibrational level below ``HOT_LOWER_MAX`` = 4000 cm⁻¹ (both inversion
+  components) with the harmonic scaling of :func:`harmonic_factor` and no
+  anharmonic shift from the umbrella mode; bands that change v2 start from
+  the ground pair only.
+* **Truncations** (chosen to keep ~3.8e5 lines): the hot-band lower levels
+  hold 97.6% of the molecules at 1000 K, 64% at 2000 K and 31% at 3000 K,
+  and J'' ≤ 25 keeps 99.8%, 94% and 84% of a band's strength at those
+  temperatures, so band strengths are too low by up to these factors at
+  the hot end of the grid (where NH₃ is not expected to be abundant).  Abundance-weighted, ¹⁴NH₃ abundance
   0.995872 (HITRAN isotopologue table, value from memory).
 * **Partition function**: direct sum over the rotational levels (J ≤ 45)
   of all vibration–inversion levels below 18000 cm⁻¹ (agrees with TIPS 2021
@@ -102,8 +109,8 @@ BANDS = (
     ((2, 0, 1, 0), False, 0.0, 1.0e-21, "2nu1+nu3"),
     ((1, 0, 2, 0), False, 0.0, 1.0e-21, "nu1+2nu3"),
 )
-#: hot-band lower states: (v1, v2, v3, v4) with v2 = 1, 2
-HOT_LOWER = ((0, 1, 0, 0), (0, 2, 0, 0))
+#: hot bands start from every vibrational level (both inversion components) below this, cm⁻¹
+HOT_LOWER_MAX = 4000.0
 BROADENING = {"gamma_h2": 0.080, "n_h2": 0.60, "gamma_he": 0.035, "n_he": 0.45}
 
 J_MAX_PARTITION = 45
@@ -210,21 +217,41 @@ def transition_moment_sq(delta) -> float:
     return band[3] / (INTENSITY_PREFACTOR * nu0 * stim * ground_pair_fraction(T_REF))
 
 
+def harmonic_factor(lower, delta) -> float:
+    """Strength of (lower + Δ <- lower) per lower sublevel relative to (Δ <- 0), harmonic.
+
+    Π over modes and added quanta of (v_i + d_i + k - 1)/(d_i + k - 1) for a
+    d_i-fold degenerate mode (exact for Δv = 1 of an isotropic oscillator;
+    common practice, no source).
+    """
+    f = 1.0
+    for n, dv, d in zip(lower, delta, (1, 1, DEGENERACY[3], DEGENERACY[4])):
+        for k in range(1, dv + 1):
+            f *= (n + d + k - 1) / (d + k - 1)
+    return f
+
+
+def hot_lower_states():
+    """Vibrational levels (s component below HOT_LOWER_MAX) that start hot bands."""
+    levels = sorted({v for v, inv, g in _vib_levels(HOT_LOWER_MAX) if inv == 0}, key=lambda v: term_value(v, 0))
+    return [v for v in levels if any(v)]
+
+
 def band_list(hot_bands: bool = True):
     """Inversion sub-bands: dicts with lower, upper, lower/upper inversion, parallel, ζ, |R|², label."""
-    lowers = [(0, 0, 0, 0)] + (list(HOT_LOWER) if hot_bands else [])
+    lowers = [(0, 0, 0, 0)] + (hot_lower_states() if hot_bands else [])
     out = []
     for delta, parallel, zeta, _s, label in BANDS:
         r2 = transition_moment_sq(delta)
         for low in lowers:
             if any(low) and delta[1] != 0:
-                continue   # no hot bands of the umbrella overtones themselves
+                continue   # umbrella-changing bands only from the ground pair (ladder not harmonic)
             up = tuple(a + b for a, b in zip(low, delta))
             for inv_lo in (0, 1):
                 inv_up = 1 - inv_lo if parallel else inv_lo
                 out.append(dict(label=label if not any(low) else f"{label} hot from {low}",
                                 lower=low, upper=up, inv_lo=inv_lo, inv_up=inv_up, parallel=parallel,
-                                zeta=zeta, r2=r2 * degeneracy(low),
+                                zeta=zeta, r2=r2 * degeneracy(low) * harmonic_factor(low, delta),
                                 g_lo=term_value(low, inv_lo), g_up=term_value(up, inv_up)))
     return out
 
@@ -262,7 +289,7 @@ def band_lines(band: dict, max_j: int):
     return nu[good], el[good], s[good]
 
 
-def line_list(max_j: int = 30, wn_min: float = 1500.0, wn_max: float = 13000.0,
+def line_list(max_j: int = 25, wn_min: float = 1500.0, wn_max: float = 13000.0,
               min_strength: float = 1e-26, check_temperatures=(296.0, 1000.0, 3000.0),
               hot_bands: bool = True) -> LineList:
     """¹⁴NH₃ line list (strengths at 296 K, HITRAN form).
@@ -277,7 +304,7 @@ def line_list(max_j: int = 30, wn_min: float = 1500.0, wn_max: float = 13000.0,
         Keep a line if its strength exceeds this (cm molecule⁻¹) at any of
         ``check_temperatures``.
     hot_bands : bool
-        Include bands from the v2 = 1, 2 inversion pairs.
+        Include bands from excited vibrational levels (``HOT_LOWER_MAX``).
     """
     q_ref = partition_function(T_REF)
     qs = {t: partition_function(t) for t in check_temperatures}
