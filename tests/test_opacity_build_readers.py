@@ -205,3 +205,31 @@ def test_cia_bad_header_names_the_line(tmp_path):
     path.write_text("H2-H2 1 2\n")
     with pytest.raises(InputFileError, match="line 1"):
         read_cia(path)
+
+
+def test_cli_exomol_build_matches_hitran_build(reference_dir, tmp_path, capsys):
+    from retrieve.cli.main import main
+    from retrieve.opacity.table import read_table
+    from retrieve.opacity_build.build import build_cross_section_table
+
+    _write_exomol_from_hitran(reference_dir, tmp_path)
+    (tmp_path / "12C-16O__H2.broad").unlink()  # default broadening on both sides
+    opts = ["--wavelength-range", "2.3", "2.4", "--resolving-power", "200", "--temperatures", "1000",
+            "--pressures", "0.1", "--no-progress", "--workers", "1"]
+    code = main(["opacity", "build", "--exomol", str(tmp_path / "12C-16O__Test.def"), "--out",
+                 str(tmp_path / "out"), *opts])
+    capsys.readouterr()
+    assert code == 0
+    exo = read_table(tmp_path / "out" / "CO.xsec.h5")
+    hapi = pytest.importorskip("hapi")
+    from retrieve.opacity_build.partition import read_partition_file
+    lines = concatenate(read_hitran(reference_dir / "hitran" / "co_hitran2020_sample.par",
+                                    partition=read_partition_file(tmp_path / "12C-16O__Test.pf")))
+    grid = BuildGrid(wavelength_range_um=(2.3, 2.4), resolving_power=200, temperatures_K=(1000.0,),
+                     pressures_bar=(0.1,))
+    hit = build_cross_section_table(lines, grid, "CO", progress=False)
+    assert hapi.abundance(5, 1) < 1
+    # source: Šimečková et al. 2006 eq. 20 - the same lines from A (ExoMol files) or from S (HITRAN)
+    # give the same opacity; 4-digit A and S values -> 0.5 %
+    np.testing.assert_allclose(10.0 ** exo.log10_value.astype(float) * hapi.abundance(5, 1),
+                               10.0 ** hit.log10_value.astype(float), rtol=5e-3)

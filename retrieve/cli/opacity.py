@@ -152,16 +152,16 @@ def _line_source(args, species):
         options = {"format": "hitran", "isotopologues": isos or "all", "air_broadening": args.air_broadening}
         inputs = list(args.hitran) + ([args.partition] if args.partition else [])
         return source, inputs, species, options
-    from ..opacity_build.exomol import read_exomol, read_def
+    from ..opacity_build.exomol import _species_from_slug, read_def
 
-    read_def(args.exomol)  # fail early with a clear message
+    info = read_def(args.exomol)  # fail early with a clear message
+    species = species or _species_from_slug(info["iso_slug"])
     source = functools.partial(_exomol_chunks, args.exomol, species, args.partition)
-    first = next(iter(source()))
     folder = Path(args.exomol).parent
     inputs = [args.exomol] + sorted(str(p) for p in folder.iterdir()
-                                    if p.name.startswith(Path(args.exomol).name.split("__")[0] + "__")
+                                    if p.name.startswith(info["iso_slug"] + "__")
                                     and p.suffix != ".def" and p.is_file())
-    return source, inputs, first.species, {"format": "exomol"}
+    return source, inputs, species, {"format": "exomol"}
 
 
 def _hitran_chunks(paths, species, isos, partition, air):

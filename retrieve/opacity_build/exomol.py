@@ -4,8 +4,9 @@ File layout (Tennyson et al. 2016, J. Mol. Spectrosc. 327, 73, sec. 4;
 ExoMol format as documented with the database):
 
 * ``<iso-slug>__<dataset>.def`` — "value  # description" lines; read here:
-  iso-slug, dataset name, isotopologue mass (Da), default Lorentz HWHM and
-  temperature exponent.
+  iso-slug, dataset name, isotopologue mass (Da); the default Lorentz HWHM
+  and exponent are returned by :func:`read_def` for information only (they
+  refer to air), lines without ``.broad`` data get :data:`DEFAULT_BROADENING`.
 * ``.states`` — whitespace columns: state ID, energy (cm⁻¹), total
   degeneracy g, J, then optional columns (not used).
 * ``.trans`` (one file, or several split by wavenumber range; plain or
