@@ -110,3 +110,29 @@ def test_config_round_trips_through_toml_writer(case):
     from retrieve.inference.config import parse_config
     again = parse_config(tomllib.loads(config_to_toml(cfg)), base_dir=cfg.base_dir)
     assert again.digest == cfg.digest and again.sampler == cfg.sampler
+
+
+def test_command_line_spectra_complete_the_datasets(case, tmp_path):
+    from retrieve.inference.run import merge_spectra
+    cfg = load_config(case / "fit.toml")
+    simulate(case, name="extra")
+    # a bare path whose dataset name matches an entry replaces that entry's file
+    merged = merge_spectra(cfg, [str(case / "ifs.ecsv")])
+    assert [d.name for d in merged.datasets] == ["ifs"] and merged.datasets[0].file == case / "ifs.ecsv"
+    # an unknown name is added with the noise switches off; NAME=PATH binds explicitly
+    merged = merge_spectra(cfg, [str(case / "extra.ecsv"), f"ifs={case / 'extra.ecsv'}"])
+    assert [d.name for d in merged.datasets] == ["ifs", "extra"]
+    assert merged.dataset("ifs").file == case / "extra.ecsv"
+    assert merged.dataset("extra").noise_switches() == (False, False, False)
+
+
+def test_resume_refuses_changed_input(case, tmp_path, capsys):
+    import shutil
+    folder = tmp_path / "c"
+    shutil.copytree(case, folder)
+    cfg = folder / "fit.toml"
+    assert main(["fit", "--config", str(cfg), "--out", str(tmp_path / "run"), "--max-steps", "100",
+                 "--no-progress"]) == 0
+    simulate(folder, seed=99)                     # the spectrum file changes under the run
+    code = main(["fit", "--config", str(cfg), "--out", str(tmp_path / "run"), "--resume", "--no-progress"])
+    assert code == 2 and "changed since the run started" in capsys.readouterr().err

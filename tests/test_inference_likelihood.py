@@ -115,3 +115,19 @@ def test_posterior_pickles_without_its_model():
     clone = pickle.loads(pickle.dumps(post))
     assert clone._model is None
     assert clone([1.0, 0.3]) == value
+
+
+def test_spectrum_and_photometry_terms_add():
+    wl_phot = np.array([1.25, 1.65, 2.16])
+    spec = Dataset("ifs", "spectrum", LAM, 1.0 + R, SIG)
+    phot = Dataset("phot", "photometry", wl_phot, np.array([1.1, 1.4, 1.5]), np.array([0.05, 0.05, 0.08]),
+                   filters=["twomass-J", "twomass-H", "twomass-Ks"])
+    post = LogPosterior(LinearModelFactory(2), ObjectData("t", [spec, phot]),
+                        {"coef_0": Uniform(-5, 5), "coef_1": Uniform(-5, 5)}, noise={"phot": (True, False, False)},
+                        fixed={"scale_phot": 1.2})
+    c0, c1 = 1.0, 0.6
+    ll = post.log_likelihood(post.params([c0, c1]))
+    # independent datasets: ln L = Σ_datasets Σ_points ln N(d; s·m, σ) (reference: scipy.stats.norm)
+    expected = (np.sum(stats.norm(c0 + c1 * (LAM - 1), SIG).logpdf(spec.flux))
+                + np.sum(stats.norm(1.2 * (c0 + c1 * (wl_phot - 1)), phot.uncertainty).logpdf(phot.flux)))
+    np.testing.assert_allclose(ll, expected, rtol=1e-12)

@@ -328,7 +328,12 @@ def fit(config, spectra=None, out_dir="run", workers: int = 1, max_steps: int | 
             write_dataset(d, out / rundir.DATA_DIR / f"{d.name}.ecsv", overwrite=True)
         rundir.write_json(out / rundir.MANIFEST, {**manifest, "status": "sampling"})
     else:
-        manifest["started_utc"] = rundir.read_json(out / rundir.MANIFEST).get("started_utc", manifest["started_utc"])
+        previous = rundir.read_json(out / rundir.MANIFEST)
+        changed = [p for p, h in manifest["input_sha256"].items() if previous.get("input_sha256", {}).get(p, h) != h]
+        if changed:
+            raise UserError(f"{changed[0]}: changed since the run started (sha256 differs); "
+                            f"use --overwrite to start afresh")
+        manifest["started_utc"] = previous.get("started_utc", manifest["started_utc"])
 
     with warnings.catch_warnings(record=True) as caught:
         warnings.simplefilter("always", RuntimeWarning)
