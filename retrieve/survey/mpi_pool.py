@@ -120,12 +120,23 @@ class MPIPool:
             self._sent_func = func
         for r in range(1, self.size):
             self.comm.send((_TASK, [items[i] for i in blocks[r]]), dest=r, tag=_TAG)
-        results = [func(items[i]) for i in blocks[0]]
+        own_error = None
+        try:
+            results = [func(items[i]) for i in blocks[0]]
+        except Exception as exc:  # collect the workers' replies first, else they would answer the next map
+            own_error, results = exc, []
+        failed = []
         for r in range(1, self.size):
             status, payload = _recv(self.comm, r)
-            if status != "ok":
-                raise WorkerError(f"MPI rank {r} failed while evaluating:\n{payload}")
-            results.extend(payload)
+            if status == "ok":
+                results.extend(payload)
+            else:
+                failed.append((r, payload))
+        if own_error is not None:
+            raise own_error
+        if failed:
+            r, tb = failed[0]
+            raise WorkerError(f"MPI rank {r} failed while evaluating:\n{tb}")
         return results
 
     def close(self) -> None:
