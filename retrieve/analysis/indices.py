@@ -242,3 +242,93 @@ def index_of_model(model_flux: np.ndarray, dataset, definition: IndexDefinition)
         return np.full(m.shape[0], math.nan)
     a, b = weights
     return (m @ a) / (m @ b)
+
+
+# --------------------------------------------------------------------------- tables of many objects
+def _object_name(dataset) -> str:
+    meta = dataset.meta or {}
+    for key in ("object", "object_name", "name"):
+        if isinstance(meta.get(key), str) and meta[key].strip():
+            return meta[key].strip()
+    return dataset.source.stem if dataset.source is not None else dataset.name
+
+
+def data_index_row(dataset, definitions, n_draws: int = DEFAULT_DRAWS, seed: int = 0) -> dict:
+    """``{name, file, source="data", <index>, <index>_err, ...}`` of one spectrum."""
+    rng = np.random.default_rng(seed)
+    row = {"name": _object_name(dataset), "file": str(dataset.source or ""), "source": "data"}
+    for d in definitions:
+        v = measure_index(dataset, d, n_draws=n_draws, rng=rng)
+        row[d.name], row[f"{d.name}_err"] = v.value, v.err
+    return row
+
+
+def model_index_rows(run, definitions, n_draws: int = 200, seed: int = 0) -> list[dict]:
+    """Indices of a run's posterior model spectra: median and standard deviation over posterior draws.
+
+    One row per spectroscopic dataset of the run (flux-scale factors applied).
+    """
+    from ..errors import ModelEvaluationError
+    post = run.log_posterior
+    s = run.samples
+    x = np.column_stack([np.asarray(s[n], dtype=float) for n in post.param_names])
+    rng = np.random.default_rng(seed)
+    pick = rng.choice(x.shape[0], size=min(int(n_draws), x.shape[0]), replace=False)
+    spectra = {t.name: [] for t in post.terms}
+    for theta in x[pick]:
+        params = post.params(theta)
+        try:
+            with np.errstate(all="ignore"):
+                out = post.model_output(params)
+        except ModelEvaluationError:
+            continue
+        for t in post.terms:
+            spectra[t.name].append(np.asarray(out.per_dataset[t.name], float) *
+                                   (params[f"scale_{t.name}"] if t.scale else 1.0))
+    rows = []
+    for ds in run.object_data.datasets:
+        if ds.kind != "spectrum" or not spectra[ds.name]:
+            continue
+        m = np.array(spectra[ds.name])
+        row = {"name": f"{run.manifest.get('object', 'object')} model", "file": str(run.run_dir), "source": "model"}
+        for d in definitions:
+            vals = index_of_model(m, ds, d)
+            row[d.name] = float(np.median(vals))
+            row[f"{d.name}_err"] = float(np.std(vals, ddof=1)) if vals.size > 1 else math.nan
+        rows.append(row)
+    return rows
+
+
+def index_table(datasets, definitions=BURGASSER_2006, run=None, n_draws: int = DEFAULT_DRAWS,
+                model_draws: int = 200, seed: int = 0):
+    """Table of spectral indices: one row per spectrum, plus model rows when a run is given.
+
+    Parameters
+    ----------
+    datasets : sequence of Dataset
+        Spectra (one object each).
+    definitions : sequence of IndexDefinition
+    run : retrieve.inference.rundir.Run, optional
+        Adds the indices of its posterior model spectra (``source = "model"``).
+    n_draws, model_draws, seed
+        Noise realisations per spectrum, posterior draws of the model, seed.
+
+    Returns
+    -------
+    astropy.table.Table
+        Columns ``name``, ``file``, ``source``, then ``<index>`` and ``<index>_err`` per definition;
+        meta holds each definition's windows and source.
+    """
+    from astropy.table import Table
+    rows = [data_index_row(ds, definitions, n_draws, seed + i) for i, ds in enumerate(datasets)]
+    if run is not None:
+        rows += model_index_rows(run, definitions, model_draws, seed)
+    names = ["name", "file", "source"] + [c for d in definitions for c in (d.name, f"{d.name}_err")]
+    table = Table(rows=[[r[c] for c in names] for r in rows], names=names) if rows else Table(names=names)
+    table.meta["definition"] = "index = mean flux density in the numerator window(s) / reference (see meta windows)"
+    table.meta["uncertainty"] = f"standard deviation over {n_draws} seeded noise realisations (covariance if given)"
+    table.meta["windows"] = {d.name: {"numerator_um": [list(w) for w in d.numerator],
+                                      "denominator_um": [list(w) for w in d.denominator],
+                                      "interpolate": d.interpolate, "molecule": d.molecule, "source": d.source}
+                             for d in definitions}
+    return table
