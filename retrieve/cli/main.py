@@ -24,6 +24,8 @@ COMMAND_MODULES = [
     "plot",
     "report",
     "batch",
+    "identify",
+    "bands",
 ]
 
 
