@@ -179,3 +179,9 @@ def test_partition_function_registered():
     q = get_partition_function("CH4")
     for t in (296.0, 1500.0):
         assert q(t) == pytest.approx(ch4.partition_function(t), rel=1e-12)
+
+
+def test_isotopologue_abundance_matches_hitran():
+    hapi = pytest.importorskip("hapi")
+    # HITRAN isotopologue abundance of the main isotopologue (hapi.ISO table)
+    assert ch4.ABUNDANCE == pytest.approx(hapi.ISO[(6, 1)][2], rel=1e-5)

@@ -149,3 +149,9 @@ def test_line_list_regions_and_hot_bands():
     _, _, s_hot = h2o.band_lines(*low, 25)
     ratio = s_hot.sum() / h2o.BAND_STRENGTH_296[(0, 1, 0)] / h2o.ABUNDANCE
     assert 5e-4 < ratio < 1.5e-3
+
+
+def test_isotopologue_abundance_matches_hitran():
+    hapi = pytest.importorskip("hapi")
+    # HITRAN isotopologue abundance of the main isotopologue (hapi.ISO table)
+    assert h2o.ABUNDANCE == pytest.approx(hapi.ISO[(1, 1)][2], rel=1e-5)
