@@ -122,34 +122,41 @@ def emission_flux(planck_levels: np.ndarray, dtau: np.ndarray, mu: np.ndarray, m
     # τ there changes nothing in double precision and keeps exp away from denormal results
     tau = np.empty((n_layers + 1, n_w))
     tau[0] = 0.0
+    n_seen = n_layers
     for i in range(n_layers):                                   # faster than cumsum along axis 0
         np.add(tau[i], dtau[i], out=tau[i + 1])
+        if i % 8 == 7 and tau[i + 1].min() >= _TAU_CAP:
+            # every wavelength is opaque above this level: deeper layers add < 4e-18 of the flux
+            n_seen = i + 1
+            break
+    tau = tau[:n_seen + 1]
     np.minimum(tau, _TAU_CAP, out=tau)
-    # the division uses the true dτ: only the (negligible) transmissions are capped
+    # a floor keeps 0/0 away from empty layers (limit of (1 - e^{-Δ})/Δ is 1) with products normal
+    dtau = np.maximum(dtau[:n_seen], 1e-250)
     # candidates for the thin-layer branch, found once (flat indices; usually a small set)
     dtau_flat = np.ascontiguousarray(dtau).ravel()
     cand = np.flatnonzero(dtau_flat < _THIN * float(np.max(mu)))
     d_cand = dtau_flat[cand]
-    inv_dtau = 1.0 / np.maximum(dtau, 1e-300)
-    acc = np.zeros((n_layers, n_w))
-    trans = np.empty((n_layers + 1, n_w))
-    ratio = np.empty((n_layers, n_w))
+    acc = np.zeros((n_seen, n_w))
+    trans = np.empty((n_seen + 1, n_w))
+    diff = np.empty((n_seen, n_w))
     for m, wm in zip(mu, mu_weights):
         np.multiply(tau, -1.0 / m, out=trans)
         if _TAU_CAP / m > _EXP_ARG_MAX:
             np.maximum(trans, -_EXP_ARG_MAX, out=trans)
         np.exp(trans, out=trans)                                # T_i = exp(-τ_i / μ)
-        # T_i (1 - e^{-Δ})/Δ = (T_i - T_{i+1}) μ / dτ; μ goes into the weight below
-        np.subtract(trans[:-1], trans[1:], out=ratio)
-        ratio *= inv_dtau
+        # T_i (1 - e^{-Δ})/Δ = (T_i - T_{i+1}) μ / dτ; 1/dτ is applied after the loop, μ in the weight
+        np.subtract(trans[:-1], trans[1:], out=diff)
         if cand.size:
-            # Δ < 1e-5: the difference loses precision (ε/Δ); T_i (1 - Δ/2) / μ is exact to Δ²/6 there
+            # Δ < 1e-5: the difference loses precision (ε/Δ); T_i Δ (1 - Δ/2) is exact to Δ³/6 there
             sel = d_cand < _THIN * m
             idx = cand[sel]
-            ratio.ravel()[idx] = trans[:-1].ravel()[idx] * (1.0 - 0.5 * d_cand[sel] / m) / m
-        ratio *= 2.0 * np.pi * wm * m * m                       # 2π w μ (flux) × μ (from 1/Δ)
-        acc += ratio
-    d_planck = planck_levels[1:] - planck_levels[:-1]
+            delta = d_cand[sel] / m
+            diff.ravel()[idx] = trans[:-1].ravel()[idx] * delta * (1.0 - 0.5 * delta)
+        diff *= 2.0 * np.pi * wm * m * m                        # 2π w μ (flux) × μ (from 1/Δ)
+        acc += diff
+    acc /= dtau                                                 # true dτ: only transmissions were capped
+    d_planck = planck_levels[1:n_seen + 1] - planck_levels[:n_seen]
     # π B_0: the 2π Σ w μ of the constant term (Gauss-Legendre integrates μ exactly)
     return np.pi * planck_levels[0] + np.einsum("lw,lw->w", d_planck, acc)
 

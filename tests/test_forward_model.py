@@ -266,12 +266,17 @@ def test_opacity_set_search_order_and_errors(tmp_path, monkeypatch):
     write_table(smooth_table("CH4", WL, 3), second / "CH4.xsec.h5")
     write_table(smooth_table("CO", WL, 4, kind="ktable"), second / "CO.ktable.h5")
     monkeypatch.setenv("RETRIEVE_OPACITY_DIR", str(second))
-    got = OpacitySet.load(["H2O", "CH4"], [], opacity_dir=first)
+    bundled = tmp_path / "bundled"          # stands in for the project's opacity_tables/
+    bundled.mkdir()
+    write_table(smooth_table("NH3", WL, 5), bundled / "NH3.xsec.h5")
+    monkeypatch.setattr("retrieve.opacity.opacity_set.project_opacity_dir", lambda: bundled)
+    got = OpacitySet.load(["H2O", "CH4", "NH3"], [], opacity_dir=first)
     # DEVELOPERS.md search order: [model] opacity_dir, then $RETRIEVE_OPACITY_DIR, then opacity_tables/
     assert got.molecular["H2O"].path.parent == first and got.molecular["CH4"].path.parent == second
+    assert got.molecular["NH3"].path.parent == bundled
     assert got.kind == "cross_section"
-    with pytest.raises(OpacityTableError, match=r"no opacity table for NH3 .*first.*second"):
-        OpacitySet.load(["NH3"], [], opacity_dir=first)
+    with pytest.raises(OpacityTableError, match=r"no opacity table for K .*first.*second.*bundled"):
+        OpacitySet.load(["K"], [], opacity_dir=first)
     with pytest.raises(OpacityTableError, match="mix kinds"):
         OpacitySet.load(["H2O", "CO"], [], opacity_dir=first)
     with pytest.raises(OpacityTableError, match="no CIA table for H2-H2"):
