@@ -1,5 +1,4 @@
 """Pressure grid, T–P profiles, free chemistry and hydrostatics."""
-import astropy.constants as const
 import astropy.units as u
 import numpy as np
 import pytest

@@ -105,8 +105,6 @@ def test_correlated_noise_follows_its_covariance(opacity_dir):
 
 
 def test_cli_writes_dataset_with_truths(opacity_dir, tmp_path):
-    import tomllib  # noqa: F401  (the file must parse as TOML)
-
     from retrieve.cli.main import main
     from retrieve.observations.readers import read_dataset
 
