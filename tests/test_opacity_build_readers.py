@@ -233,3 +233,18 @@ def test_cli_exomol_build_matches_hitran_build(reference_dir, tmp_path, capsys):
     # give the same opacity; 4-digit A and S values -> 0.5 %
     np.testing.assert_allclose(10.0 ** exo.log10_value.astype(float) * hapi.abundance(5, 1),
                                10.0 ** hit.log10_value.astype(float), rtol=5e-3)
+
+
+def test_hitran_missing_final_newline_and_crlf(reference_dir, tmp_path):
+    src = reference_dir / "hitran" / "co_hitran2020_sample.par"
+    ref = concatenate(read_hitran(src, partition=Q_FLAT, isotopologues=None))
+    text = src.read_bytes()
+    for name, data in (("nonl.par", text.rstrip(b"\n")), ("crlf.par", text.replace(b"\n", b"\r\n"))):
+        path = tmp_path / name
+        path.write_bytes(data)
+        for chunk in (1000, 10 ** 6):
+            got = concatenate(read_hitran(path, partition=Q_FLAT, isotopologues=None, chunk_lines=chunk))
+            # common practice, no source: line endings do not change the records read
+            # (chunks are split by isotopologue, so compare as sorted sets)
+            np.testing.assert_array_equal(np.sort(got.wavenumber_cm), np.sort(ref.wavenumber_cm))
+            np.testing.assert_array_equal(np.sort(got.strength_ref), np.sort(ref.strength_ref))

@@ -139,7 +139,9 @@ def _open(path: Path):
 def iter_record_blocks(path: str | os.PathLike, chunk_lines: int = 1_000_000) -> Iterator[tuple[np.ndarray, list | None]]:
     """Yield ``(records (n, 160) uint8, tails or None)`` for successive chunks of a ``.par`` file.
 
-    ``tails`` holds the bytes after column 160 (extended records) when present.
+    ``tails`` holds the bytes after column 160 (extended records) when present.  For plain
+    160-character files the records are a view into a buffer that is reused for the next
+    chunk (no per-chunk allocation); copy them if they must outlive the iteration step.
     """
     path = Path(path)
     if not path.is_file():
@@ -149,24 +151,63 @@ def iter_record_blocks(path: str | os.PathLike, chunk_lines: int = 1_000_000) ->
         if not first:
             return
         line_len = len(first)
-        plain = line_len in (RECORD_LENGTH + 1, RECORD_LENGTH + 2) and first.endswith(b"\n")
-        # plain files: read whole records so that chunks need no re-joining
-        block_bytes = chunk_lines * line_len if plain else chunk_lines * 300
+        if line_len in (RECORD_LENGTH + 1, RECORD_LENGTH + 2) and first.endswith(b"\n"):
+            limit = None if path.suffix == ".bz2" else path.stat().st_size
+            yield from _fixed_blocks(fh, first, line_len, chunk_lines, limit, path)
+            return
         pending = first
         while True:
-            data = fh.read(block_bytes)
+            data = fh.read(chunk_lines * 300)
             if not data:
                 if pending:
                     yield _records_from_bytes(pending, path, None)
                 return
-            buf = pending + data if pending else data
-            if plain and len(buf) % line_len == 0 and buf.endswith(b"\n"):
-                pending = b""
-            else:
-                cut = buf.rfind(b"\n") + 1
-                buf, pending = buf[:cut], buf[cut:]
+            buf = pending + data
+            cut = buf.rfind(b"\n") + 1
+            buf, pending = buf[:cut], buf[cut:]
             if buf:
-                yield _records_from_bytes(buf, path, line_len if plain else None)
+                yield _records_from_bytes(buf, path, None)
+
+
+def _fill(fh, view: memoryview, start: int) -> int:
+    """readinto until ``view`` is full or the stream ends; returns the bytes now held."""
+    filled = start
+    while filled < len(view):
+        n = fh.readinto(view[filled:])
+        if not n:
+            break
+        filled += n
+    return filled
+
+
+def _fixed_blocks(fh, first: bytes, line_len: int, chunk_lines: int, limit: int | None, path: Path):
+    """Chunks of a file of equal-length records, read into one reused buffer."""
+    size = max(1, int(chunk_lines)) * line_len
+    if limit is not None:
+        size = min(size, limit + line_len)
+    buf = np.empty(size, dtype=np.uint8)
+    view = memoryview(buf)
+    buf[:line_len] = np.frombuffer(first, dtype=np.uint8)
+    start = line_len
+    while True:
+        filled = _fill(fh, view, start)
+        eof = filled < size
+        if filled == 0:
+            return
+        rows = buf[:filled - filled % line_len].reshape(-1, line_len)
+        if filled % line_len == 0 and np.all(rows[:, -1] == ord("\n")):
+            yield rows[:, :RECORD_LENGTH], None
+            start = 0
+        else:  # irregular lengths somewhere in this chunk: general path
+            data = bytes(view[:filled])
+            cut = len(data) if eof else data.rfind(b"\n") + 1
+            if cut:
+                yield _records_from_bytes(data[:cut], path, None)
+            rest = data[cut:]
+            buf[:len(rest)] = np.frombuffer(rest, dtype=np.uint8)
+            start = len(rest)
+        if eof:
+            return
 
 
 def _records_from_bytes(buf: bytes, path: Path, line_len: int | None):
