@@ -224,3 +224,22 @@ def test_band_depth_of_a_flat_spectrum_is_one(tmp_path):
     for name in ("h2o_j", "ch4_j", "h2o_h", "ch4_h"):
         assert abs(depths[name] - 1.0) < 3 * depths[f"{name}_err"] + 1e-12
     assert math.isnan(depths.get("h2o_k", math.nan))  # K band not covered
+
+
+def test_an_object_with_a_bad_configuration_fails_alone(demo, tmp_path):
+    path = _catalogue(tmp_path, object=["good", "nocfg"], spectra=[f"ifs={demo.spectra[0]}"] * 2,
+                      config=["", "missing.toml"])
+    good, nocfg = build_tasks(read_catalogue(path), demo.config, tmp_path / "out")
+    assert good.setup_error == "" and good.config.object_name == "good"
+    out = run_object(nocfg)
+    assert out["status"] == "failed" and "missing.toml: configuration file not found" in out["error"]
+    assert (tmp_path / "out" / "nocfg" / ERROR).is_file()
+
+
+def test_batch_cli_bad_catalogue_is_exit_code_2_before_any_cluster(demo, tmp_path, capsys):
+    from retrieve.cli.main import main
+    path = _catalogue(tmp_path, object=["a"], spectrum=["x.ecsv"])
+    code = main(["batch", str(path), "--config", str(demo.config), "--out", str(tmp_path / "out")])
+    err = capsys.readouterr().err
+    assert code == 2 and "missing column 'spectra'" in err and err.count("\n") == 1
+    assert not (tmp_path / "out").exists()

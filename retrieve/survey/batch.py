@@ -305,6 +305,8 @@ class SurveyResult:
     summary: Table
     figure: Path | None
     elapsed_s: float
+    dispatch_s: float = math.nan   # first submission to last result
+    summary_s: float = math.nan    # summary table and figure
 
     @property
     def n_failed(self) -> int:
@@ -387,17 +389,21 @@ def run_survey(catalogue, config, out_dir, workers: int | None = None, scheduler
         info["scheduler"] = client.scheduler.address
         info["workers"] = len(client.scheduler_info(n_workers=-1).get("workers", {}))
         _write_json(out / SURVEY_JSON, {**info, "status": "running"})
+        t_dispatch = time.monotonic()
         _dispatch(client, tasks, progress, out)
+        dispatch_s = time.monotonic() - t_dispatch
+    t_summary = time.monotonic()
     status = progress.table()
     _write_table(status, out / STATUS)
     from .summary import survey_summary, survey_figure
     summary = survey_summary(status, out, entries)
     _write_table(summary, out / SUMMARY)
     figure = survey_figure(summary, out / FIGURE)
+    summary_s = time.monotonic() - t_summary
     elapsed = time.monotonic() - t0
     _write_json(out / SURVEY_JSON, {**info, "status": "finished", "finished_utc": now_utc(), "wall_time_s": elapsed,
-                                    "counts": progress.counts()})
-    return SurveyResult(out, status, summary, figure, elapsed)
+                                    "dispatch_s": dispatch_s, "summary_s": summary_s, "counts": progress.counts()})
+    return SurveyResult(out, status, summary, figure, elapsed, dispatch_s, summary_s)
 
 
 def _dispatch(client, tasks: list[ObjectTask], progress: SurveyProgress, out: Path) -> None:
