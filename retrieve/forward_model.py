@@ -408,9 +408,9 @@ class ForwardModel:
         if not np.all(np.isfinite(flux)):
             raise ModelEvaluationError("non-finite flux")
         per_dataset = {name: op @ flux for name, op in self.operators.items()}
-        if contrib is not None:
+        if contrib is not None:   # normalised per wavelength; 0 where nothing is emitted
             with np.errstate(invalid="ignore", divide="ignore"):
-                contrib = contrib / flux_surface[None, :]
+                contrib = np.where(flux_surface[None, :] > 0, contrib / flux_surface[None, :], 0.0)
         return ModelOutput(wavelength_um=self.wavelength_um, flux_highres=flux, per_dataset=per_dataset,
                            pressure_bar=self.pressure_bar, temperature_K=t, vmr=comp.vmr, contribution=contrib)
 

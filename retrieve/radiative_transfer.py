@@ -20,8 +20,14 @@ each layer's own emission attenuated by ``exp(-τ_top/μ)`` above it, which is
 what the contribution function reports.  The flux is
 ``F_λ = 2π ∫₀¹ I(μ) μ dμ``, in W m⁻² µm⁻¹ at the surface.
 
-All arrays are vectorised over (n_mu, n_layers, n_w); ``n_w`` may be a
-flattened (wavelength × g) axis for correlated-k.
+Vertical optical depths beyond τ = 40 are treated as opaque (transmission
+e^{-40} = 4e-18 to the top): the solver stops at the first level below which
+every wavelength is that deep.  This neglects emission weighted by < 4e-18,
+which matters only if B_λ at depth exceeded B_λ near τ ~ 1 by more than ~1e17
+(a Wien-side contrast that needs T to rise by a factor ~10 over the column).
+
+All arrays are vectorised over (n_layers, n_w) per direction; ``n_w`` may
+be a flattened (wavelength × g) axis for correlated-k.
 """
 from __future__ import annotations
 
