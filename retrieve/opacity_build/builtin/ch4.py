@@ -27,7 +27,9 @@ Method
   With ``HOT_LOWER_MAX`` = 7500 cm⁻¹ the lower levels hold 99.7% of the
   molecules at 1000 K, 93% at 1500 K, 77% at 2000 K and 49% at 3000 K: band
   strengths are too low by up to these factors at the hot end of the grid.
-  J'' ≤ 60 keeps > 99.9% of a band's strength up to 3000 K.
+  J'' ≤ 50 (default) keeps 99.2% of a band's strength at 3000 K and
+  stays below J ≈ 60, where the quartic D term alone would fold the R
+  branches back into spurious heads (the sextic term is omitted).
 * **Intensities**: S = (8π³/3hc) ν |R|² g_v'' f_harm F_rot e^{-c2 E''/T}
   (1 - e^{-c2 ν/T}) / Q(T), with |R|² of each cold pseudo-band derived from
   its strength S_band(296 K) = (8π³/3hc) ν0 |R|² (1 - e^{-c2 ν0/T}) / Q_vib.
@@ -270,7 +272,7 @@ def band_lines(band: dict, max_j: int):
     return nu, el, s, lines["dj"]
 
 
-def line_list(max_j: int = 60, wn_min: float = 1500.0, wn_max: float = 13000.0,
+def line_list(max_j: int = 50, wn_min: float = 1500.0, wn_max: float = 13000.0,
               min_strength: float = 1e-26, check_temperatures=(296.0, 1000.0, 3000.0),
               hot_bands: bool = True) -> LineList:
     """¹²CH₄ line list (strengths at 296 K, HITRAN form) from the pseudo-band model.
