@@ -26,6 +26,9 @@ Method
   ground-state values.  This is the "approximate via α's" simplification:
   line positions are good to a few cm⁻¹ at low J and worse (tens of cm⁻¹)
   at high J / high Ka in bending-excited states — adequate at R ≲ 1000.
+  Ground-state check: the J ≤ 3 levels lie within 0.15 cm⁻¹ of the measured
+  ones, the J = Ka = 4…8 levels 0.3–8 cm⁻¹ below them (measured values from
+  memory, see the tests).
 * **Selection rules and spin statistics**: the transition moment lies along
   b for A1 ← A1 bands (Δv3 even; b-type, ΔKa and ΔKc odd) and along a for
   B2 bands (Δv3 odd; a-type, ΔKa even, ΔKc odd); they follow from the
@@ -47,8 +50,8 @@ Method
   scaling |R(v''+Δ ← v'')|² = |R(Δ ← 0)|² Π_i C(v''_i + Δ_i, Δ_i) (common
   practice, no source); the lower states hold 99.97% of the molecules at
   1000 K, 98.5% at 2000 K and 90% at 3000 K.  Strengths are abundance-weighted (HITRAN
-  convention), H₂¹⁶O abundance 0.997317 (HITRAN isotopologue table, value
-  from memory).
+  convention), H₂¹⁶O abundance 0.997317 (HITRAN isotopologue table, as
+  carried by hapi.ISO; checked in the tests).
 * **Partition function**: direct sum over the same levels (J ≤ 50) of all
   vibrational states below 20000 cm⁻¹; see :func:`partition_function`.
 
@@ -69,7 +72,11 @@ Sources of constants (all cm⁻¹)
 * Band strengths S_band(296 K) (cm molecule⁻¹, HITRAN-like band sums):
   values from memory of HITRAN band totals (Rothman et al. 2013, JQSRT 130,
   4; Gordon et al. 2022, JQSRT 277, 107949); the weak ones (≲1e-20) are
-  uncertain by up to a factor ~2.
+  uncertain by up to a factor ~2.  The band-system totals (1.4 µm 9.4e-19,
+  1.9 µm 8.9e-19, 1.14 µm 7.9e-20, 0.94 µm 6.7e-20) agree with the
+  ~20 cm⁻² atm⁻¹ (≈8e-19) quoted for the 1.38 and 1.87 µm systems and
+  ~2 cm⁻² atm⁻¹ for the 1.14 / 0.94 µm systems in combustion-gas band-model
+  handbooks (Ludwig et al. 1973, NASA SP-3080 — values from memory).
 * Broadening: γ_H2 = 0.060 cm⁻¹ atm⁻¹, n_H2 = 0.50; γ_He = 0.025, n_He =
   0.40 at 296 K, J-independent (typical values of H₂O–H₂ / H₂O–He
   measurements, e.g. Steyert et al. 2004, J. Mol. Spectrosc. 228, 537 —
