@@ -34,7 +34,7 @@ Method
   (1 - e^{-c2 ν/T}) / Q(T), with |R|² of each cold pseudo-band derived from
   its strength S_band(296 K) = (8π³/3hc) ν0 |R|² (1 - e^{-c2 ν0/T}) / Q_vib.
   Abundance-weighted (HITRAN convention), ¹²CH₄ abundance 0.988274 (HITRAN
-  isotopologue table, value from memory).
+  isotopologue table as carried by hapi.ISO; checked in the tests).
 * **Partition function**: Q = Q_vib Q_rot; Q_rot the direct sum over the
   ground-state levels (J ≤ 120) with W(J); Q_vib the sum over the
   vibrational levels below ``E_VIB_MAX_PARTITION`` = 12000 cm⁻¹ from the
