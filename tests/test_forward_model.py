@@ -139,7 +139,7 @@ def test_dilution_distance_and_parallax(toy_set):
     np.testing.assert_allclose(a.flux_highres, b.flux_highres, rtol=1e-13)
     c = model.evaluate({**p, "radius_rjup": 2.4})
     np.testing.assert_allclose(c.flux_highres, 4 * a.flux_highres, rtol=1e-13)   # F ∝ R^2 (definition)
-    assert np.all(np.isfinite(a.flux_highres)) and np.all(a.flux_highres > 0)
+    assert np.all(np.isfinite(a.flux_highres)) and np.all(a.flux_highres > 0)   # thermal emission is positive
 
 
 def test_contribution_function_sums_to_one(toy_set):
@@ -225,6 +225,7 @@ def test_model_spec_validation():
         ModelSpec.from_mapping({"absorbers": ["H2O"], "layers": "80"})
     spec = ModelSpec.from_mapping({"absorbers": ["H2O"], "profile": "knots", "knot_pressures_bar": [1e-3, 1.0, 10.0],
                                    "opacity_dir": "tables"}, base_dir="/data/run")
+    # documented defaults (DEVELOPERS.md TOML layout; retrieve/atmosphere/pressure.py)
     assert spec.layers == 80 and spec.angles == 4 and spec.pressure_range_bar == (1e-5, 100.0)
     assert str(spec.opacity_dir) == "/data/run/tables"
 
@@ -234,11 +235,13 @@ def test_parameter_names_and_groups(toy_set):
     spec = ModelSpec.from_mapping({"absorbers": species, "profile": "knots", "cloud": "grey",
                                    "knot_pressures_bar": [1e-3, 1.0, 10.0], **NO_CONTINUUM})
     model = ForwardModel(spec, [], opac)
+    # names and order per DEVELOPERS.md "Forward-model parameters"
     assert model.parameter_names == ["log_g", "radius_rjup", "distance_pc", "t_knot_0", "t_knot_1", "t_knot_2",
                                      "log_vmr_H2O", "log_vmr_CH4", "log_vmr_CO", "log_p_cloud_top",
                                      "cloud_tau_slope"]
     assert ("distance_pc", "parallax_mas") in model.required_parameters()
     cov = model.coverage()
+    # the toy tables' axes (smooth_table defaults above)
     assert cov["temperature_K"] == (200.0, 4500.0) and cov["pressure_bar"] == (1e-6, 300.0)
 
 
