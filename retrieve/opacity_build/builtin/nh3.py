@@ -34,9 +34,10 @@ Method
   hold 97.6% of the molecules at 1000 K, 64% at 2000 K and 31% at 3000 K,
   and J'' ≤ 22 keeps 99.2%, 89% and 74% of a band's strength at those
   temperatures, so band strengths are too low by up to these factors at
-  the hot end of the grid (where NH₃ is not expected to be abundant).  Abundance-weighted, ¹⁴NH₃ abundance
-  0.995872 (HITRAN isotopologue table as carried by hapi.ISO; checked in the
-  tests).
+  the hot end of the grid (where NH₃ is not expected to be abundant).
+* **Abundance**: strengths are abundance-weighted (HITRAN convention),
+  ¹⁴NH₃ abundance 0.995872 (HITRAN isotopologue table as carried by
+  hapi.ISO; checked in the tests).
 * **Partition function**: direct sum over the rotational levels (J ≤ 45)
   of all vibration–inversion levels below 18000 cm⁻¹ (agrees with TIPS 2021
   within 1% over 296–3000 K, tests/test_builtin_nh3.py).
