@@ -40,7 +40,7 @@ Method
   hapi.ISO; checked in the tests).
 * **Partition function**: direct sum over the rotational levels (J ≤ 45)
   of all vibration–inversion levels below 18000 cm⁻¹ (agrees with TIPS 2021
-  within 1% over 296–3000 K, tests/test_builtin_nh3.py).
+  within 1.8% over 296–3000 K, tests/test_builtin_nh3.py).
 
 Sources of constants (cm⁻¹)
 ---------------------------
