@@ -9,7 +9,7 @@ intensity is propagated from the bottom boundary, where it equals the Planck
 function of the deepest level, to the top, where nothing is incident from
 above.  Within each layer the source function S = B_λ(T) is taken linear in
 optical depth between the levels, and the formal solution is integrated
-exactly for that S (e.g. Mihalas 1978, *Stellar Atmospheres*, 2nd ed., §2-4;
+exactly for that S (e.g. Mihalas 1978, *Stellar Atmospheres*, 2nd ed., ch. 2;
 common practice in emission codes).  For a layer of slant optical thickness
 Δ = dτ/μ with source B_top at its top and B_bot at its bottom::
 

@@ -50,7 +50,7 @@ def _deep_grid(n_levels=120, tau_max=80.0):
 @pytest.mark.parametrize("n_mu", [3, 4, 16])
 def test_linear_source_is_integrated_exactly(n_mu):
     # For S = a + b τ in a semi-infinite atmosphere the emergent intensity is a + b μ
-    # (Eddington–Barbier, exact for a linear source; Mihalas 1978, Stellar Atmospheres, §2-4),
+    # (Eddington–Barbier, exact for a linear source; Mihalas 1978, Stellar Atmospheres, ch. 2),
     # so F = 2π ∫ (a + b μ) μ dμ = π a + 2π b / 3.
     tau, dtau = _deep_grid()
     a, b = np.array([2.0, 0.5, 7.0]), np.array([3.0, 10.0, 0.0])
