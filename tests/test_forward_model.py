@@ -105,6 +105,8 @@ class HopfProfile(profiles_mod.TPProfile):
 
 
 def test_grey_hopf_atmosphere_emits_sigma_teff4(monkeypatch):
+    # the table's surface value is the exact q(0) = 1/√3 (Hopf's grey solution; Mihalas 1978, ch. 3)
+    assert hopf_q(0.0) == pytest.approx(1.0 / np.sqrt(3.0), abs=1e-6)
     wl = np.geomspace(0.25, 400.0, 2500)
     log_sigma = -22.0
     opac = OpacitySet.from_tables({"H2O": grey_table("H2O", wl, log_sigma)})
