@@ -89,7 +89,12 @@ def test_flag_thresholds_and_chi2_conversion():
     assert flag_of(math.nan, 0) == "not covered"
     # chi2 with 1 dof: sigma = sqrt(chi2) (a one-dof chi2 is a squared normal deviate; common practice)
     assert chi2_sigma(9.0, 1) == pytest.approx(3.0, rel=1e-9)
-    assert chi2_sigma(2000.0, 5) == pytest.approx(stats.norm.isf(np.exp(stats.chi2.logsf(2000.0, 5)) / 2), rel=1e-6)
+    assert chi2_sigma(200.0, 5) == pytest.approx(stats.norm.isf(stats.chi2.sf(200.0, 5) / 2), rel=1e-6)
+    # far tail where scipy's logsf underflows: continuous with it and growing like sqrt(chi2)
+    # (for 1 dof, sigma = sqrt(chi2) exactly: a one-dof chi2 is a squared normal deviate)
+    assert chi2_sigma(1e6, 1) == pytest.approx(1e3, rel=1e-4)
+    s = chi2_sigma(np.array([1400.0, 1500.0, 3000.0, 1e5]), 4)
+    assert np.all(np.isfinite(s)) and np.all(np.diff(s) > 0)
 
 
 def test_channel_strings_and_channel_selection():

@@ -30,7 +30,7 @@ import dataclasses
 import math
 
 import numpy as np
-from scipy import linalg, stats
+from scipy import linalg, special, stats
 
 from ..errors import ModelEvaluationError
 from .significance import sigma_from_log_p
@@ -70,9 +70,24 @@ def flag_of(sigma: float, n_channels: int) -> str:
     return "not detected"
 
 
+def chi2_log_sf(chi2, dof):
+    """ln P(χ²_dof ≥ chi2), with the large-x form of the upper incomplete gamma function where scipy underflows.
+
+    Q(s, x) = Γ(s, x)/Γ(s) ≈ x^(s−1) e^(−x) / Γ(s) (1 + (s−1)/x) for x ≫ s (Abramowitz & Stegun 1964, 6.5.32),
+    with s = dof/2 and x = chi2/2.
+    """
+    chi2 = np.asarray(chi2, dtype=float)
+    with np.errstate(divide="ignore"):
+        out = np.asarray(stats.chi2.logsf(chi2, dof), dtype=float)
+    s, x = 0.5 * dof, 0.5 * np.maximum(chi2, 1e-300)
+    asym = (s - 1.0) * np.log(x) - x - special.gammaln(s) + np.log1p((s - 1.0) / x)
+    out = np.where(np.isneginf(out), asym, out)
+    return out[()] if out.ndim == 0 else out
+
+
 def chi2_sigma(chi2, dof):
     """Two-tailed equivalent σ of a χ² value with ``dof`` degrees of freedom (stable in the far tail)."""
-    return sigma_from_log_p(stats.chi2.logsf(np.asarray(chi2, dtype=float), dof))
+    return sigma_from_log_p(chi2_log_sf(chi2, dof))
 
 
 def band_channels(dataset, band) -> np.ndarray:
