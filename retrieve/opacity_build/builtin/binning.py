@@ -93,15 +93,22 @@ def bin_average_cross_section(linelists, wavelength_edges_um: np.ndarray, temper
     for ll in linelists:
         order = np.argsort(ll.wavenumber_cm, kind="stable")
         ll = ll.select(order)
+        geometry = {}
+        for ip, p in enumerate(press):
+            # line positions (pressure-shifted if the list has shifts), kept sorted by the stable order
+            nu = ll.line_positions(p)
+            key = None if ll.shift_cm_atm is None else ip
+            if key not in geometry:
+                lines, bins = _pairs(nu, lo, hi, cutoff_cm)
+                geometry[key] = (lines, bins, np.clip(lo[bins] - nu[lines], -cutoff_cm, cutoff_cm),
+                                 np.clip(hi[bins] - nu[lines], -cutoff_cm, cutoff_cm))
         nu = ll.wavenumber_cm
-        lines, bins = _pairs(nu, lo, hi, cutoff_cm)
-        a = np.clip(lo[bins] - nu[lines], -cutoff_cm, cutoff_cm)
-        b = np.clip(hi[bins] - nu[lines], -cutoff_cm, cutoff_cm)
         for it, t in enumerate(temps):
             s = ll.strength(t)
-            keep = s[lines] > min_strength_ratio * s.max() if min_strength_ratio > 0 else slice(None)
             gd = doppler_hwhm(nu, t, ll.mass_amu)
             for ip, p in enumerate(press):
+                lines, bins, a, b = geometry[None if ll.shift_cm_atm is None else ip]
+                keep = s[lines] > min_strength_ratio * s.max() if min_strength_ratio > 0 else slice(None)
                 gl = ll.lorentz_hwhm(t, p, broadeners)
                 fwhm, eta = pseudo_voigt_params(gd, gl)
                 li = lines[keep]

@@ -143,7 +143,16 @@ def partition_function(temperature):
 
 
 def _harmonic_factor(lower, delta):
-    """|R_hot|²/|R_cold|² for the change ``delta`` from ``lower`` (harmonic oscillator)."""
+    """|R_hot|²/|R_cold|² for the change ``delta`` from ``lower`` (harmonic oscillator).
+
+    Ratio of the squared harmonic matrix elements from ``lower`` and from the
+    ground state, so that it is 1 for the cold band itself.
+    """
+    return _harmonic_sq(lower, delta) / _harmonic_sq((0, 0, 0, 0), delta)
+
+
+def _harmonic_sq(lower, delta):
+    """Squared harmonic matrix element of the change ``delta`` from ``lower``, up to a constant."""
     v1, v2, l, v3 = lower
     d1, d2, d3 = delta
     from math import comb
