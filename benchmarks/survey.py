@@ -17,7 +17,9 @@ on it.  Printed:
 * engine overhead per task = (wall − Σ in-task time) / N with 1 worker, which
   includes submission, scheduling, result transfer and the status-table
   rewrite after each object;
-* round-trip latency of an empty task (submit → result, one at a time).
+* round-trip latency of an empty task (submit → result, one at a time);
+* the load average before and after, and the fits' CPU time: wall ≫ CPU means
+  the cores were shared with other work.
 
 The machine's cores may be shared with other work; the numbers are only as
 good as the idle capacity while it runs.
@@ -25,6 +27,7 @@ good as the idle capacity while it runs.
 from __future__ import annotations
 
 import argparse
+import os
 import statistics
 import sys
 import tempfile
@@ -60,8 +63,9 @@ def one_setting(demo, folder: Path, n_workers: int) -> dict:
             latency.append(time.perf_counter() - t)
         result = run_survey(demo.catalogue, demo.config, folder / f"out_{n_workers}", client=client, stream=None)
     inside = [float(x) for x in result.status["elapsed_s"]]
+    cpu = [float(x) for x in result.status["cpu_s"]]
     return {"workers": n_workers, "startup_s": t_ready, "wall_s": result.dispatch_s, "summary_s": result.summary_s,
-            "task_sum_s": sum(inside),
+            "task_sum_s": sum(inside), "cpu_sum_s": sum(cpu),
             "task_mean_s": statistics.fmean(inside), "n_failed": result.n_failed,
             "latency_ms": 1e3 * statistics.median(latency)}
 
@@ -74,6 +78,7 @@ def main(argv=None) -> int:
     args = parser.parse_args(argv)
 
     from retrieve.survey.demo import make_demo_survey
+    print(f"load average before: {' '.join(f'{x:.1f}' for x in os.getloadavg())} on {os.cpu_count()} cores")
     with tempfile.TemporaryDirectory() as tmp:
         folder = Path(args.folder or tmp)
         demo = make_demo_survey(folder / "demo", n_objects=args.objects, max_steps=args.max_steps,
@@ -82,11 +87,12 @@ def main(argv=None) -> int:
     for r in rows:
         print(f"{r['workers']} worker(s): start-up {r['startup_s']:.1f} s, dispatch wall {r['wall_s']:.2f} s, "
               f"summary {r['summary_s']:.2f} s, "
-              f"Σ in-task {r['task_sum_s']:.2f} s (mean {r['task_mean_s']:.2f} s per fit), "
+              f"Σ in-task {r['task_sum_s']:.2f} s (mean {r['task_mean_s']:.2f} s per fit; Σ CPU {r['cpu_sum_s']:.2f} s), "
               f"failed {r['n_failed']}, empty-task round trip {r['latency_ms']:.1f} ms")
     one, two = rows
     speedup = one["wall_s"] / two["wall_s"]
     overhead = (one["wall_s"] - one["task_sum_s"]) / args.objects
+    print(f"load average after: {' '.join(f'{x:.1f}' for x in os.getloadavg())}")
     print(f"speed-up 1 -> 2 workers: {speedup:.2f}x (target >= 1.8x on 2 free cores)")
     print(f"engine overhead per task (1 worker, incl. status-table rewrite): {1e3 * overhead:.0f} ms "
           f"= {100 * overhead / one['task_mean_s']:.1f} % of a {one['task_mean_s']:.2f} s fit")

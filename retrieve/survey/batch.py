@@ -186,14 +186,15 @@ def run_object(task: ObjectTask) -> dict:
     -------
     dict
         ``object``, ``status`` ("finished" / "failed"), ``skipped``, ``resumed``,
-        ``error`` (one line), ``elapsed_s``, ``finished_utc``, ``converged``, ``n_steps``.
+        ``error`` (one line), ``elapsed_s``, ``cpu_s`` (this process's CPU time), ``finished_utc``,
+        ``converged``, ``n_steps``.
     """
     from ..inference import rundir
     from ..inference.run import fit
 
-    t0 = time.monotonic()
+    t0, cpu0 = time.monotonic(), time.process_time()
     out = {"object": task.name, "status": "failed", "skipped": False, "resumed": False, "error": "",
-           "elapsed_s": 0.0, "finished_utc": "", "converged": None, "n_steps": None}
+           "elapsed_s": 0.0, "cpu_s": 0.0, "finished_utc": "", "converged": None, "n_steps": None}
     run_dir = Path(task.run_dir)
     marker = _read_marker(run_dir)
     if marker is not None:
@@ -231,6 +232,7 @@ def run_object(task: ObjectTask) -> dict:
             _write_error(run_dir, out["error"], detail)
             log.error("failed: %s\n%s", out["error"], detail)
     out["elapsed_s"] = time.monotonic() - t0
+    out["cpu_s"] = time.process_time() - cpu0  # elapsed ≫ cpu means the node's cores are oversubscribed
     announce(task.name, "ended", status=out["status"])
     return out
 

@@ -122,15 +122,15 @@ class SurveyProgress:
     def table(self) -> Table:
         """Status table: one row per object."""
         with self._lock:
-            rows = [(n, s, str(self.detail[n].get("error", "") or ""), bool(self.detail[n].get("skipped", False)),
-                     bool(self.detail[n].get("resumed", False)), float(self.detail[n].get("elapsed_s", float("nan"))),
-                     str(self.detail[n].get("worker", "") or ""), str(self.detail[n].get("finished_utc", "") or ""))
-                    for n, s in self.state.items()]
-        t = Table(rows=rows, names=("object", "status", "error", "skipped", "resumed", "elapsed_s", "worker",
+            rows = [(n, s, str(d.get("error", "") or ""), bool(d.get("skipped", False)), bool(d.get("resumed", False)),
+                     float(d.get("elapsed_s", float("nan"))), float(d.get("cpu_s", float("nan"))),
+                     str(d.get("worker", "") or ""), str(d.get("finished_utc", "") or ""))
+                    for (n, s), d in zip(self.state.items(), self.detail.values())]
+        t = Table(rows=rows, names=("object", "status", "error", "skipped", "resumed", "elapsed_s", "cpu_s", "worker",
                                     "finished_utc"),
-                  dtype=(str, str, str, bool, bool, float, str, str)) if rows else Table()
+                  dtype=(str, str, str, bool, bool, float, float, str, str)) if rows else Table()
         if rows:
-            t["elapsed_s"].unit = "s"
+            t["elapsed_s"].unit = t["cpu_s"].unit = "s"
         return t
 
 
