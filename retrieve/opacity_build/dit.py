@@ -81,7 +81,9 @@ class FineGridAccumulator:
         self.seg = max(int(grid.segment_points), 4 * self.n_cut)
         self.n_seg = int(np.ceil(self.nu.size / self.seg))
         self.n_ext = self.seg + 2 * self.n_cut
-        self.n_fft = scipy.fft.next_fast_len(self.n_ext + 2 * self.n_cut, real=True)
+        # circular convolution of length >= n_ext leaves the kept outputs [2 n_cut, 2 n_cut + seg) exact
+        # (+1: one spare column per histogram row takes the weight of a line at the very end)
+        self.n_fft = scipy.fft.next_fast_len(self.n_ext + 1, real=True)
         self.planes: dict[tuple[int, int, int], np.ndarray] = {}
         self.sigma = np.zeros(self.nu.size)
         # widths below these floors are unresolved spikes anyway (kept normalised)
@@ -123,8 +125,6 @@ class FineGridAccumulator:
                 continue
             self._bin_segment(s, u[a:b] - (start - self.n_cut), strength[a:b], jd[a:b], fd[a:b],
                               jl[a:b], fl[a:b])
-            if getattr(self, "_final", False):
-                self._convolve_segment(s)
 
     def _bin_segment(self, s, x, strength, jd, fd, jl, fl) -> None:
         i0 = np.floor(x).astype(np.int64)
@@ -132,41 +132,45 @@ class FineGridAccumulator:
         jd_min, jl_min = int(jd.min()), int(jl.min())
         n_l = int(jl.max()) - jl_min + 2
         n_pairs = (int(jd.max()) - jd_min + 2) * n_l
-        base = ((jd - jd_min) * n_l + (jl - jl_min)) * self.n_ext + i0
+        # rows of length n_fft (zeros past n_ext): ready for the FFT without padding copies
+        stride = self.n_fft
+        base = ((jd - jd_min) * n_l + (jl - jl_min)) * stride + i0
         weights, index = [], []
         for dd, wd in ((0, 1.0 - fd), (1, fd)):
             swd = strength * wd
             for dl, wl in ((0, 1.0 - fl), (1, fl)):
                 swdl = swd * wl
-                off = (dd * n_l + dl) * self.n_ext
+                off = (dd * n_l + dl) * stride
                 weights += [swdl * (1.0 - fx), swdl * fx]
                 index += [base + off, base + off + 1]
-        idx = np.concatenate(index)
-        w = np.concatenate(weights)
-        # points past the padded segment (line at its very end) are dropped
-        ok = (idx >= 0) & (idx < n_pairs * self.n_ext)
-        hist = np.bincount(idx[ok], weights=w[ok], minlength=n_pairs * self.n_ext).reshape(n_pairs, self.n_ext)
+        hist = np.bincount(np.concatenate(index), weights=np.concatenate(weights),
+                           minlength=n_pairs * stride).reshape(n_pairs, stride)
+        hist[:, self.n_ext:] = 0.0  # weight pushed past the padded segment (exact end point) is dropped
         used = np.flatnonzero(hist.any(axis=1))
+        if getattr(self, "_final", False):  # no more chunks: convolve now, keep nothing
+            widths = [(jd_min + int(p) // n_l, jl_min + int(p) % n_l) for p in used]
+            self._convolve(s, widths, hist if used.size == n_pairs else hist[used])
+            return
         for p in used:
             key = (s, jd_min + int(p) // n_l, jl_min + int(p) % n_l)
             plane = self.planes.get(key)
             if plane is None:
-                self.planes[key] = hist[p].copy()
+                self.planes[key] = hist[p, :self.n_ext].copy()
             else:
-                plane += hist[p]
+                plane += hist[p, :self.n_ext]
 
     def _convolve_segment(self, s: int) -> None:
-        """Convolve and sum the planes of segment ``s`` into :attr:`sigma`, then free them."""
+        """Convolve and sum the stored planes of segment ``s`` into :attr:`sigma`, then free them."""
         keys = [k for k in self.planes if k[0] == s]
-        if not keys:
-            return
-        acc = np.zeros(self.n_fft // 2 + 1, dtype=np.complex128)
-        for key in keys:
-            _, jd, jl = key
-            plane = self.planes.pop(key)
-            acc += scipy.fft.rfft(plane, self.n_fft) * _kernel_fft(jd, jl, self.h_d, self.h, self.d, self.n_cut,
-                                                                  self.n_fft)
-        conv = scipy.fft.irfft(acc, self.n_fft)
+        if keys:
+            self._convolve(s, [k[1:] for k in keys], np.stack([self.planes.pop(k) for k in keys]))
+
+    def _convolve(self, s: int, widths: list, planes: np.ndarray) -> None:
+        """Add Σ_p planes[p] ⊛ kernel(widths[p]) to segment ``s`` of :attr:`sigma` (one batched FFT)."""
+        spectra = scipy.fft.rfft(planes, self.n_fft, axis=1)
+        for row, (jd, jl) in zip(spectra, widths):
+            row *= _kernel_fft(jd, jl, self.h_d, self.h, self.d, self.n_cut, self.n_fft)
+        conv = scipy.fft.irfft(spectra.sum(axis=0), self.n_fft)
         start = s * self.seg
         n = min(self.seg, self.nu.size - start)
         # plane index m + n_cut is segment point m; the kernel centre sits at n_cut
