@@ -248,3 +248,17 @@ def test_hitran_missing_final_newline_and_crlf(reference_dir, tmp_path):
             # (chunks are split by isotopologue, so compare as sorted sets)
             np.testing.assert_array_equal(np.sort(got.wavenumber_cm), np.sort(ref.wavenumber_cm))
             np.testing.assert_array_equal(np.sort(got.strength_ref), np.sort(ref.strength_ref))
+
+
+def test_cli_cia_build_and_info(tmp_path, capsys):
+    from retrieve.cli.main import main
+
+    src = tmp_path / "H2-H2_test.cia"
+    _write_cia(src)
+    out = tmp_path / "H2-H2.cia.h5"
+    assert main(["opacity", "build", "--cia", str(src), "--out", str(out), "--wavelength-range", "1.0", "4.0",
+                 "--resolving-power", "100", "--date", "2026-01-01T00:00:00+00:00"]) == 0
+    assert main(["opacity", "info", str(out)]) == 0
+    text = capsys.readouterr().out
+    # the file's own header values (pair, temperatures) and a verified checksum
+    assert "H2-H2" in text and "300-1000 K, 3 values" in text and "checksum:    OK" in text
