@@ -243,3 +243,15 @@ def test_batch_cli_bad_catalogue_is_exit_code_2_before_any_cluster(demo, tmp_pat
     err = capsys.readouterr().err
     assert code == 2 and "missing column 'spectra'" in err and err.count("\n") == 1
     assert not (tmp_path / "out").exists()
+
+
+def test_survey_figure_picks_the_best_covered_index_pair(tmp_path):
+    from retrieve.survey.summary import survey_figure
+    t = Table({"object": ["a", "b", "c"], "h2o_h": [0.9, 0.8, np.nan], "h2o_h_err": [0.01, 0.02, np.nan],
+               "ch4_h": [1.0, 0.7, np.nan], "ch4_h_err": [0.02, 0.02, np.nan],
+               "h2o_j": [np.nan, 0.6, np.nan], "ch4_j": [np.nan, 0.9, np.nan]})
+    path = survey_figure(t, tmp_path / "fig.png")
+    # PNG signature (PNG specification, section 5.2)
+    assert path == tmp_path / "fig.png" and path.read_bytes()[:8] == b"\x89PNG\r\n\x1a\n"
+    assert survey_figure(Table({"object": ["a"], "h2o_h": [np.nan], "ch4_h": [np.nan]}), tmp_path / "n.png") is None
+    assert not (tmp_path / "n.png").exists()

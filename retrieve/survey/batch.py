@@ -10,6 +10,10 @@ submits :func:`run_object` once per object to a Dask cluster:
 * SLURM or PBS jobs through dask-jobqueue (``[survey] cluster = "slurm"``
   or ``"pbs"``; optional dependency).
 
+With a remote scheduler or batch jobs, the workers must be able to import
+``retrieve`` and to read and write the same paths as the client (catalogue,
+spectra, opacity tables, ``SURVEY_DIR`` on a shared filesystem).
+
 Layout of ``SURVEY_DIR``::
 
     <object>/                 the object's run folder, exactly as ``retrieve fit --out`` writes it
