@@ -71,11 +71,12 @@ def test_batch_killed_midway_resumes_skips_finished_and_reports_broken(tmp_path)
                             stdout=subprocess.PIPE, stderr=subprocess.STDOUT, text=True)
     try:
         ready = _wait_for(lambda: (fast / "completed.json").is_file() and (slow / "chain.h5").is_file(), proc, 240)
-        shutil.copy(slow / "chain.h5", tmp_path / "slow_at_kill.h5")
     finally:
         os.killpg(proc.pid, signal.SIGKILL)  # our own process group: batch client, scheduler, workers
         text = proc.communicate()[0]
     assert ready, text
+    time.sleep(0.5)  # let the kernel reap the killed workers before reading their files
+    shutil.copy(slow / "chain.h5", tmp_path / "slow_at_kill.h5")
     assert not (slow / "completed.json").exists(), "slow finished before the kill; lengthen its chain"
     with h5py.File(tmp_path / "slow_at_kill.h5") as f:
         chain_at_kill = f["chain"][...]
