@@ -114,7 +114,7 @@ def test_run_object_writes_a_run_folder_then_skips_it_and_refuses_a_changed_fit(
     changed = run_object(ObjectTask(**{**task.__dict__, "fingerprint": "other"}))
     assert changed["status"] == "failed" and "different configuration" in changed["error"]
     log = task.log_path.read_text()
-    assert "attempt started" in log and "finished:" in log
+    assert "attempt started" in log and "finished (" in log
 
 
 def test_run_object_records_a_broken_spectrum_and_retries_it(demo, tmp_path):
@@ -255,3 +255,22 @@ def test_survey_figure_picks_the_best_covered_index_pair(tmp_path):
     assert path == tmp_path / "fig.png" and path.read_bytes()[:8] == b"\x89PNG\r\n\x1a\n"
     assert survey_figure(Table({"object": ["a"], "h2o_h": [np.nan], "ch4_h": [np.nan]}), tmp_path / "n.png") is None
     assert not (tmp_path / "n.png").exists()
+
+
+def test_identification_after_a_finished_fit_without_refitting(demo, tmp_path):
+    pytest.importorskip("retrieve.analysis.identify")
+    from retrieve.survey.summary import object_row
+    task = _task(demo, tmp_path, demo.spectra[0])
+    assert run_object(task)["status"] == "finished"
+    chain_mtime = os.stat(task.run_dir / "chain.h5").st_mtime_ns
+    with_id = ObjectTask(**{**task.__dict__, "identify": True})
+    out = run_object(with_id)
+    assert out["status"] == "finished" and not out["skipped"], out
+    assert os.stat(task.run_dir / "chain.h5").st_mtime_ns == chain_mtime      # the fit was not redone
+    assert json.loads((task.run_dir / COMPLETED).read_text())["identified"] is True
+    assert run_object(with_id)["skipped"]
+    det = Table.read(task.run_dir / "detections.ecsv")
+    row = object_row("obj", {"status": "finished", "error": ""}, task.run_dir)
+    # the summary copies the identification step's numbers
+    assert row["sigma_H2O"] == pytest.approx(float(det["significance_sigma"][0]))
+    assert row["ln_b_H2O"] == pytest.approx(float(det["ln_bayes_factor"][0]))

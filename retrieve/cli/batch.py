@@ -23,6 +23,9 @@ def register(subparsers) -> None:
                              "(default: [survey] workers, else the CPU count)")
     parser.add_argument("--scheduler", metavar="ADDRESS", help="use a running Dask scheduler, e.g. tcp://host:8786")
     parser.add_argument("--max-steps", type=int, metavar="N", help="override [sampler] max_steps of every object")
+    parser.add_argument("--identify", action="store_true",
+                        help="after each fit, run the identification step (reduced fits, detections, band flags; "
+                             "as [survey] identify = true)")
     parser.add_argument("--quiet", action="store_true", help="no progress lines")
     parser.set_defaults(func=run)
 
@@ -31,7 +34,8 @@ def run(args: argparse.Namespace) -> int:
     from ..survey.batch import run_survey
     logging.basicConfig(level=logging.WARNING, format="retrieve: %(message)s")
     result = run_survey(args.catalogue, args.config, args.out, workers=args.workers, scheduler=args.scheduler,
-                        max_steps=args.max_steps, stream=None if args.quiet else sys.stderr)
+                        max_steps=args.max_steps, stream=None if args.quiet else sys.stderr,
+                        identify=True if args.identify else None)
     n = len(result.status)
     failed = result.n_failed
     print(f"{n - failed}/{n} objects finished, {failed} failed, in {result.elapsed_s:.1f} s")

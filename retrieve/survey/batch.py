@@ -46,6 +46,10 @@ does not stop the others.
 * ``job_setup``: shell lines run before the worker starts (list of strings)
 * ``python``: interpreter on the compute nodes (default: this one)
 * ``scratch_dir``: node-local folder for worker spill files
+* ``identify``: after each fit, run the identification step
+  (:func:`retrieve.analysis.identify.identify`: one reduced fit per free
+  absorber, Bayes factors, band flags) so that the summary has detections
+  (as ``--identify``; default false)
 """
 from __future__ import annotations
 
@@ -81,7 +85,7 @@ CLUSTERS = ("local", "slurm", "pbs")
 SURVEY_TYPES = {
     "cluster": str, "workers": int, "scheduler": str, "queue": str, "account": str, "walltime": str,
     "cores_per_job": int, "memory_per_job": str, "job_directives": list, "job_setup": list, "python": str,
-    "scratch_dir": str,
+    "scratch_dir": str, "identify": bool,
 }
 
 
@@ -102,6 +106,7 @@ class SurveySettings:
     job_setup: tuple = ()
     python: str | None = None
     scratch_dir: str | None = None
+    identify: bool = False
 
 
 def survey_settings(mapping, where: str) -> SurveySettings:
@@ -147,6 +152,7 @@ class ObjectTask:
     fingerprint: str
     max_steps: int | None = None
     setup_error: str = ""     # a configuration problem found on the client
+    identify: bool = False    # run the identification step after the fit
 
 
 def fingerprint(config, spectra) -> str:
@@ -201,13 +207,16 @@ def run_object(task: ObjectTask) -> dict:
            "elapsed_s": 0.0, "cpu_s": 0.0, "finished_utc": "", "converged": None, "n_steps": None}
     run_dir = Path(task.run_dir)
     marker = _read_marker(run_dir)
+    fitted = False
     if marker is not None:
-        if marker.get("fingerprint") == task.fingerprint:
+        if marker.get("fingerprint") != task.fingerprint:
+            out["error"] = (f"{run_dir}: finished earlier with a different configuration or spectra; "
+                            f"remove the folder to fit it again")
+            return out
+        if not task.identify or marker.get("identified"):
             return {**out, "status": "finished", "skipped": True, "finished_utc": marker.get("finished_utc", ""),
                     "converged": marker.get("converged"), "n_steps": marker.get("n_steps")}
-        out["error"] = (f"{run_dir}: finished earlier with a different configuration or spectra; "
-                        f"remove the folder to fit it again")
-        return out
+        fitted = True  # finished before without identification: only that is left to do
     announce(task.name, "running")
     with object_log(task.log_path, task.name) as log, warnings.catch_warnings():
         warnings.simplefilter("always")
@@ -216,19 +225,27 @@ def run_object(task: ObjectTask) -> dict:
             if task.setup_error:
                 raise UserError(task.setup_error)
             (run_dir / ERROR).unlink(missing_ok=True)
-            mode = _start_mode(run_dir)
-            log.info("run folder %s: %s", run_dir, {"fresh": "new run", "resume": "resuming the checkpoint",
-                                                     "overwrite": "replacing an incomplete run"}[mode])
-            result = fit(task.config, spectra=list(task.spectra), out_dir=run_dir, workers=1,
-                         max_steps=task.max_steps, resume=mode == "resume", overwrite=mode == "overwrite",
-                         progress=False)
-            out.update(status="finished", resumed=mode == "resume", converged=bool(result.converged),
-                       n_steps=int(result.n_steps), finished_utc=now_utc())
+            if fitted:
+                out.update(converged=marker.get("converged"), n_steps=marker.get("n_steps"))
+            else:
+                mode = _start_mode(run_dir)
+                log.info("run folder %s: %s", run_dir, {"fresh": "new run", "resume": "resuming the checkpoint",
+                                                         "overwrite": "replacing an incomplete run"}[mode])
+                result = fit(task.config, spectra=list(task.spectra), out_dir=run_dir, workers=1,
+                             max_steps=task.max_steps, resume=mode == "resume", overwrite=mode == "overwrite",
+                             progress=False)
+                out.update(resumed=mode == "resume", converged=bool(result.converged), n_steps=int(result.n_steps))
+                log.info("fit: %s after %d steps (%.1f s)", "converged" if result.converged else "NOT converged",
+                         result.n_steps, time.monotonic() - t0)
+            if task.identify:
+                from ..analysis.identify import identify
+                ident = identify(run_dir, workers=1, max_steps=task.max_steps)
+                log.info("identification: %d molecules -> detections.ecsv, bands.ecsv", len(ident.detections))
+            out.update(status="finished", finished_utc=now_utc())
             rundir.write_json(run_dir / COMPLETED, {"object": task.name, "fingerprint": task.fingerprint,
-                                                    "finished_utc": out["finished_utc"],
+                                                    "finished_utc": out["finished_utc"], "identified": task.identify,
                                                     "converged": out["converged"], "n_steps": out["n_steps"]})
-            log.info("finished: %s after %d steps (%.1f s)", "converged" if result.converged else "NOT converged",
-                     result.n_steps, time.monotonic() - t0)
+            log.info("finished (%.1f s)", time.monotonic() - t0)
         except Exception as exc:  # any failure of this object is recorded; the survey goes on
             first = str(exc).splitlines()[0] if str(exc) else type(exc).__name__
             out["error"] = first if isinstance(exc, UserError) else f"{type(exc).__name__}: {first}"
@@ -320,7 +337,7 @@ class SurveyResult:
 
 
 def build_tasks(entries: list[CatalogueEntry], config_path, out_dir: Path, max_steps=None,
-                catalogue_name: str = "catalogue") -> list[ObjectTask]:
+                catalogue_name: str = "catalogue", identify: bool = False) -> list[ObjectTask]:
     """One :class:`ObjectTask` per entry; an object whose configuration fails carries the error."""
     from ..inference.config import load_config
     base = load_config(config_path)
@@ -334,9 +351,9 @@ def build_tasks(entries: list[CatalogueEntry], config_path, out_dir: Path, max_s
         try:
             cfg = object_config(load_config(e.config) if e.config else base, e, catalogue_name)
             fp = fingerprint(cfg, e.spectra)
-            tasks.append(ObjectTask(e.name, cfg, e.spectra, run_dir, log_path, fp, max_steps))
+            tasks.append(ObjectTask(e.name, cfg, e.spectra, run_dir, log_path, fp, max_steps, identify=identify))
         except UserError as exc:
-            tasks.append(ObjectTask(e.name, None, e.spectra, run_dir, log_path, "", max_steps, str(exc)))
+            tasks.append(ObjectTask(e.name, None, e.spectra, run_dir, log_path, "", max_steps, str(exc), identify))
     return tasks
 
 
@@ -350,7 +367,8 @@ def _crash_outcome(task: ObjectTask, exc: BaseException) -> dict:
 
 
 def run_survey(catalogue, config, out_dir, workers: int | None = None, scheduler: str | None = None,
-               max_steps: int | None = None, client=None, stream=sys.stderr) -> SurveyResult:
+               max_steps: int | None = None, client=None, stream=sys.stderr,
+               identify: bool | None = None) -> SurveyResult:
     """Fit every catalogue object on Dask and write the survey folder.
 
     Parameters
@@ -371,6 +389,8 @@ def run_survey(catalogue, config, out_dir, workers: int | None = None, scheduler
         Use this client instead of starting a cluster.
     stream : file-like or None
         Progress lines (None: silent).
+    identify : bool, optional
+        Run the identification step after each fit (default ``[survey] identify``).
 
     Returns
     -------
@@ -385,10 +405,11 @@ def run_survey(catalogue, config, out_dir, workers: int | None = None, scheduler
     if out.exists() and not out.is_dir():
         raise UserError(f"{out}: exists and is not a folder; choose another --out")
     out.mkdir(parents=True, exist_ok=True)
-    tasks = build_tasks(entries, config, out, max_steps, str(catalogue))
+    identify = settings.identify if identify is None else bool(identify)
+    tasks = build_tasks(entries, config, out, max_steps, str(catalogue), identify)
     progress = SurveyProgress([t.name for t in tasks], stream=stream)
     info = {"catalogue": str(catalogue.resolve()), "config": str(config.resolve()), "objects": len(tasks),
-            "started_utc": now_utc(), "max_steps": max_steps}
+            "started_utc": now_utc(), "max_steps": max_steps, "identify": identify}
     with contextlib.ExitStack() as stack:
         if client is None:
             client = stack.enter_context(survey_client(settings, workers, scheduler))
