@@ -206,3 +206,5 @@ def test_dit_many_lines_across_segments_match_direct_sum():
     chunks = [ll.select(order[i:i + 40]) for i in range(0, n, 40)]
     _, sigma_chunked = fine_cross_sections(lambda: iter(chunks), grid, t, p)
     np.testing.assert_allclose(sigma_chunked, sigma, rtol=1e-9, atol=1e-12 * sigma.max())
+    _, sigma_list = fine_cross_sections(chunks, grid, t, p)  # in-memory chunks, segment by segment
+    np.testing.assert_allclose(sigma_list, sigma, rtol=1e-9, atol=1e-12 * sigma.max())

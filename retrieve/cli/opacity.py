@@ -57,6 +57,9 @@ def _register_build(sub) -> None:
     b.add_argument("--air-broadening", action="store_true",
                    help="HITRAN: use gamma_air/n_air where H2/He values are absent")
     b.add_argument("--workers", type=int, default=None, metavar="N", help="processes over (T, P) (default: up to 2)")
+    b.add_argument("--stream", action="store_true",
+                   help="re-read the line files for every (T, P) instead of holding the lines in memory "
+                        "(for inputs too big for memory; default holds them if ≤ 2e7 lines are expected)")
     b.add_argument("--date", metavar="ISO", help="fixed build date for reproducible files (else $SOURCE_DATE_EPOCH or now)")
     b.add_argument("--no-progress", action="store_true", help="no progress bar")
     b.set_defaults(func=run_build)
@@ -123,6 +126,8 @@ def run_build(args: argparse.Namespace) -> int:
     from ..opacity_build.build import build_tables, default_workers
 
     kinds = {"xsec": ("cross_section",), "ktable": ("ktable",), "both": ("cross_section", "ktable")}[args.kind]
+    if not args.stream and _expected_lines(inputs) <= STREAM_ABOVE_LINES:
+        source = _hold_in_memory(source)
     prov = make_provenance(inputs, grid.as_dict(), args.date, extra={"reader": options})
     tables = build_tables(source, grid, species, kinds, prov, progress=not args.no_progress,
                           n_workers=args.workers or default_workers())
@@ -162,6 +167,30 @@ def _line_source(args, species):
                                     if p.name.startswith(info["iso_slug"] + "__")
                                     and p.suffix != ".def" and p.is_file())
     return source, inputs, species, {"format": "exomol"}
+
+
+STREAM_ABOVE_LINES = 20_000_000  # ~2 GB of per-line arrays
+
+
+def _expected_lines(paths) -> float:
+    """Rough number of lines from file sizes: 60 bytes a line (ExoMol .trans rows; HITRAN records are
+    161 bytes, so this errs towards streaming), bz2 files taken as 1/6 of their text."""
+    total = 0.0
+    for p in paths:
+        p = Path(p)
+        if p.is_file():
+            total += p.stat().st_size * (6.0 if p.suffix == ".bz2" else 1.0) / 60.0  # ExoMol rows are shorter
+    return total
+
+
+def _hold_in_memory(source):
+    """Read a chunk source once; join the chunks of each isotopologue (a list of LineLists)."""
+    from ..opacity_build.linelist import concatenate
+
+    groups: dict = {}
+    for chunk in source():
+        groups.setdefault(chunk.isotopologue, []).append(chunk)
+    return [concatenate(chunks) for chunks in groups.values()]
 
 
 def _hitran_chunks(paths, species, isos, partition, air):

@@ -31,8 +31,8 @@ def _prepare_source(line_source):
         return line_source.select(order)
     if callable(line_source):
         return line_source
-    chunks = list(line_source)  # a one-shot iterable must be replayable for every (T, P)
-    return chunks
+    # a one-shot iterable must be replayable for every (T, P): keep the chunks, each sorted
+    return [c.select(np.argsort(c.wavenumber_cm, kind="stable")) for c in line_source]
 
 
 def _compute_point(task):
@@ -44,6 +44,8 @@ def _compute_point(task):
     source = _STATE["source"]
     if isinstance(source, LineList):
         acc.add(source, final=True)
+    elif isinstance(source, list):
+        acc.add_all(source)
     else:
         for chunk in iter_chunks(source):
             acc.add(chunk)
@@ -71,7 +73,9 @@ def build_tables(line_source, grid: BuildGrid, species: str, kinds=("cross_secti
     Parameters
     ----------
     line_source : LineList, list of LineList, or callable returning an iterator of LineList chunks
-        A callable is called once per (T, P) point (streamed, bounded memory).
+        LineLists (one or a list) are held in memory and processed segment by segment;
+        a callable is called again for every (T, P) point (streamed: the file is re-read,
+        and its lines are binned for the whole spectrum before the convolutions).
     grid : BuildGrid
     species : str
     kinds : iterable of {"cross_section", "ktable"}

@@ -93,38 +93,52 @@ class FineGridAccumulator:
         """Add one chunk of lines (any order).
 
         ``final=True`` promises that no more chunks follow: each segment is then
-        convolved as soon as it is binned and its planes are freed (bounded memory).
+        convolved as soon as it is binned and nothing is stored (bounded memory).
         """
-        self._final = final
+        self._bin([self._prepare(lines)], final)
+
+    def add_all(self, chunks) -> None:
+        """Add several chunks held in memory, then no more (segment-wise, bounded memory)."""
+        self._bin([self._prepare(c) for c in chunks], True)
+
+    def _prepare(self, lines: LineList):
+        """Per-line grid position, strength and width-grid split, sorted by position (or None)."""
         if len(lines) == 0:
-            return
+            return None
         pos = lines.line_positions(self.p)
         lo = (self.i_first - self.n_cut) * self.d
         hi = (self.i_first + self.nu.size - 1 + self.n_cut) * self.d
         keep = (pos >= lo) & (pos < hi)
         if not np.any(keep):
-            return
+            return None
         if not np.all(keep):
             lines, pos = lines.select(keep), pos[keep]
         strength = lines.strength(self.t)
         ad = np.maximum(doppler_hwhm(pos, self.t, lines.mass_amu), self.floor_d)
         gl = np.maximum(lines.lorentz_hwhm(self.t, self.p, self.grid.broadeners), self.floor_l)
-        self._bin(pos, strength, ad, gl)
-
-    def _bin(self, pos, strength, ad, gl) -> None:
         u = pos / self.d - self.i_first           # fractional index on the fine grid
         jd, fd = _split_log(ad, self.h_d)
         jl, fl = _split_log(gl, self.h)
         if np.any(u[1:] < u[:-1]):  # build() pre-sorts in-memory line lists; chunks may not be
             order = np.argsort(u, kind="stable")
             u, strength, jd, fd, jl, fl = (a[order] for a in (u, strength, jd, fd, jl, fl))
+        return u, strength, jd, fd, jl, fl
+
+    def _bin(self, prepared: list, final: bool) -> None:
+        self._final = final
+        prepared = [p for p in prepared if p is not None]
         for s in range(self.n_seg):
             start = s * self.seg
-            a, b = np.searchsorted(u, [start - self.n_cut, start + self.seg + self.n_cut])
-            if a == b:
+            parts = []
+            for arrays in prepared:
+                a, b = np.searchsorted(arrays[0], [start - self.n_cut, start + self.seg + self.n_cut])
+                if b > a:
+                    parts.append([x[a:b] for x in arrays])
+            if not parts:
                 continue
-            self._bin_segment(s, u[a:b] - (start - self.n_cut), strength[a:b], jd[a:b], fd[a:b],
-                              jl[a:b], fl[a:b])
+            u, strength, jd, fd, jl, fl = (parts[0] if len(parts) == 1 else
+                                           [np.concatenate(col) for col in zip(*parts)])
+            self._bin_segment(s, u - (start - self.n_cut), strength, jd, fd, jl, fl)
 
     def _bin_segment(self, s, x, strength, jd, fd, jl, fl) -> None:
         i0 = np.floor(x).astype(np.int64)
@@ -198,6 +212,8 @@ def fine_cross_sections(line_source, grid: BuildGrid, temperature_K: float, pres
     acc = FineGridAccumulator(grid, temperature_K, pressure_bar)
     if isinstance(line_source, LineList):
         acc.add(line_source, final=True)
+    elif isinstance(line_source, (list, tuple)):
+        acc.add_all(line_source)
     else:
         for chunk in iter_chunks(line_source):
             acc.add(chunk)

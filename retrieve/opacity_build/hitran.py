@@ -230,7 +230,8 @@ def _records_from_bytes(buf: bytes, path: Path, line_len: int | None):
 
 def read_hitran(path: str | os.PathLike, species: str | None = None, isotopologues=(1,),
                 partition=None, mass_amu: float | None = None, wavenumber_range=None,
-                use_air_broadening: bool = False, chunk_lines: int = 1_000_000) -> Iterator[LineList]:
+                use_air_broadening: bool = False, chunk_lines: int = 1_000_000,
+                molecule: int | None = None) -> Iterator[LineList]:
     """Stream a HITRAN ``.par`` file as LineList chunks (one per chunk and isotopologue).
 
     Parameters
@@ -253,6 +254,9 @@ def read_hitran(path: str | os.PathLike, species: str | None = None, isotopologu
         defaults of :data:`retrieve.opacity_build.linelist.DEFAULT_BROADENING`).
     chunk_lines : int
         Records per chunk (memory bound: ~0.5 kB per record while parsing).
+    molecule : int or None
+        HITRAN molecule number to keep; default that of the first record (other molecules
+        in the file are skipped).
     """
     path = Path(path)
     wanted = None if isotopologues is None else {int(i) for i in isotopologues}
@@ -262,9 +266,11 @@ def read_hitran(path: str | os.PathLike, species: str | None = None, isotopologu
         cols = parse_records(records, fields)
         if tails is not None:
             cols.update(parse_broadening_tail(tails))
+        if molecule is None:
+            molecule = int(cols["molecule"][0])
         if species is None:
-            species = HITRAN_MOLECULES.get(int(cols["molecule"][0]), f"M{int(cols['molecule'][0])}")
-        keep = np.ones(records.shape[0], dtype=bool)
+            species = HITRAN_MOLECULES.get(molecule, f"M{molecule}")
+        keep = cols["molecule"] == molecule  # files may mix molecules: keep one absorber
         if wavenumber_range is not None:
             keep &= (cols["wavenumber"] >= wavenumber_range[0]) & (cols["wavenumber"] < wavenumber_range[1])
         isos = np.unique(cols["isotopologue"][keep])
