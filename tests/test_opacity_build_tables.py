@@ -188,3 +188,18 @@ def test_cli_user_errors_exit_2(tmp_path, capsys):
     code, _, err = _run(["opacity", "build", "--hitran", str(tmp_path / "none.par"), "--partition",
                          str(tmp_path / "none.pf"), "--no-progress"], capsys)
     assert code == 2 and "not found" in err
+
+
+def test_random_overlap_negligible_gas_shortcut(monkeypatch):
+    from retrieve.opacity import correlated_k
+
+    rng = np.random.default_rng(8)
+    x, w = np.polynomial.legendre.leggauss(16)
+    w = 0.5 * w
+    k1 = np.sort(10 ** rng.uniform(-20, -18, (50, 16)), axis=-1)
+    k2 = np.sort(10 ** rng.uniform(-27, -25, (50, 16)), axis=-1)  # far below k1 everywhere
+    fast = correlated_k.mix_two(k1, k2, w)
+    monkeypatch.setattr(correlated_k, "NEGLIGIBLE", 0.0)
+    full = correlated_k.mix_two(k1, k2, w)
+    # the shortcut changes each k by less than NEGLIGIBLE relative (module docstring; no outside source)
+    np.testing.assert_allclose(fast, full, rtol=1e-4)
