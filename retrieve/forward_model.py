@@ -383,6 +383,13 @@ class ForwardModel:
         ConfigError
             A required parameter is missing.
         """
+        try:
+            return self._evaluate(params, contribution)
+        except (OverflowError, ZeroDivisionError, FloatingPointError) as exc:
+            # Python-float arithmetic on extreme values (e.g. 10.0 ** 400) raises instead of giving inf
+            raise ModelEvaluationError("parameter out of range", f"arithmetic overflow: {exc}") from None
+
+    def _evaluate(self, params: Mapping[str, float], contribution: bool) -> ModelOutput:
         values = self._scalars(params)
         gravity = 10.0 ** values["log_g"]
         if not np.isfinite(gravity) or gravity <= 0:

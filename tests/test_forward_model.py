@@ -213,6 +213,16 @@ def test_bad_parameters_raise_model_evaluation_error(toy_set):
         assert err.value.reason == reason
     with pytest.raises(ModelEvaluationError):
         model.evaluate(base_params(species, t_iso=1000.0, log_g=float("inf")))
+    for extreme in ({"log_g": 400.0}, {"log_g": -400.0}, {"t_iso": 1e200}, {"radius_rjup": 1e300},
+                    {"log_vmr_CO": 500.0}, {"distance_pc": 1e-320}):
+        with pytest.raises(ModelEvaluationError):        # never a crash (OverflowError etc.)
+            model.evaluate({**base_params(species, t_iso=1000.0), **extreme})
+    guillot = ForwardModel(ModelSpec.from_mapping({"absorbers": species, "profile": "guillot", **NO_CONTINUUM}),
+                           [], opac)
+    for extreme in ({"t_int": 1e100}, {"log_kappa_ir": 400.0}, {"log_gamma": -400.0}):
+        params = base_params(species, t_int=900.0, t_irr=100.0, log_kappa_ir=-2.0, log_gamma=0.0)
+        with pytest.raises(ModelEvaluationError):
+            guillot.evaluate({**params, **extreme})
     with pytest.raises(ConfigError, match="t_iso"):
         model.evaluate(base_params(species))
 

@@ -67,7 +67,8 @@ class FreeChemistry:
             ``"VMRs sum above 1"`` if the absorbers alone exceed unity.
         """
         log_vmr = np.array([params[name] for name in self.parameter_names], dtype=np.float64)
-        vmr = 10.0 ** log_vmr
+        with np.errstate(over="ignore"):      # a huge log VMR is refused just below, not warned about
+            vmr = 10.0 ** log_vmr
         total = float(vmr.sum())
         if not np.isfinite(total):
             raise ModelEvaluationError("non-finite parameter", "log_vmr")
