@@ -381,3 +381,27 @@ def test_flat_k_distributions_equal_cross_sections():
     b = ForwardModel(ModelSpec.from_mapping(mapping), [], OpacitySet.from_tables(kt)).evaluate(p, contribution=True)
     np.testing.assert_allclose(b.flux_highres, a.flux_highres, rtol=1e-6)
     np.testing.assert_allclose(b.contribution, a.contribution, rtol=1e-5, atol=1e-12)
+
+
+def test_any_parameters_give_a_spectrum_or_a_model_error(toy_set):
+    # property: evaluate() returns finite fluxes or raises ModelEvaluationError, whatever the numbers
+    # (the likelihood relies on it; common practice, no source)
+    from hypothesis import HealthCheck, given, settings
+    from hypothesis import strategies as st
+
+    opac, species = toy_set
+    model = ForwardModel(ModelSpec.from_mapping({"absorbers": species, "profile": "knots", "cloud": "grey",
+                                                 "knot_pressures_bar": [1e-3, 0.1, 10.0], **NO_CONTINUUM}),
+                         [], opac)
+    num = st.one_of(st.floats(allow_nan=True, allow_infinity=True), st.floats(-10, 10), st.floats(100, 5000))
+
+    @settings(max_examples=150, deadline=None, suppress_health_check=[HealthCheck.too_slow])
+    @given(st.fixed_dictionaries({n: num for n in model.parameter_names}))
+    def check(params):
+        try:
+            out = model.evaluate(params)
+        except ModelEvaluationError:
+            return
+        assert np.all(np.isfinite(out.flux_highres))
+
+    check()
