@@ -128,8 +128,10 @@ class SimulationSettings:
                                   f"or 'filters'")
         if s.template is not None and s.wavelength_range_um is not None:
             raise ConfigError(f"{where}: give either 'template' or 'wavelength_range_um', not both")
-        if s.noise and s.snr is None and s.template is None:
+        if s.noise and s.snr is None and s.template is None and s.wavelength_range_um is not None:
             raise ConfigError(f"{where}: noise = true needs 'snr' (or a template with uncertainties)")
+        if s.noise and s.filters and s.snr is None and s.snr_photometry is None:
+            raise ConfigError(f"{where}: noise = true with 'filters' needs 'snr_photometry' or 'snr'")
         return s
 
 

@@ -161,6 +161,15 @@ def test_config_errors(opacity_dir):
     cfg = _config(opacity_dir, correlated_fraction=0.5)
     with pytest.raises(ConfigError, match="correlation_length_um"):
         simulate(cfg)
+    cfg = _config(opacity_dir, filters=["twomass-H"])
+    del cfg["simulate"]["snr"], cfg["simulate"]["wavelength_range_um"], cfg["simulate"]["channels"]
+    with pytest.raises(ConfigError, match="snr_photometry"):
+        simulate(cfg)
+    cfg["simulate"]["snr_photometry"] = 8.0       # photometry alone is a valid simulation
+    res = simulate(cfg)
+    assert [d.kind for d in res.datasets] == ["photometry"]
+    # documented σ: the median model flux over the S/N
+    assert np.allclose(res.datasets[0].uncertainty, np.median(res.model_flux["sim_phot"]) / 8.0)
 
 
 def test_template_dataset_and_its_errors(opacity_dir, tmp_path):
