@@ -6,7 +6,7 @@ import pytest
 
 from retrieve.errors import InputFileError, UserError
 from retrieve.opacity_build.cia import cia_table, read_cia
-from retrieve.opacity_build.exomol import read_broad, read_def, read_exomol
+from retrieve.opacity_build.exomol import read_def, read_exomol
 from retrieve.opacity_build.grid import BuildGrid
 from retrieve.opacity_build.hitran import (HITRAN_ISOTOPOLOGUES, HITRAN_MOLECULES, iter_record_blocks,
                                            parse_records, read_hitran)

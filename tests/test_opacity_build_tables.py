@@ -203,3 +203,12 @@ def test_random_overlap_negligible_gas_shortcut(monkeypatch):
     full = correlated_k.mix_two(k1, k2, w)
     # the shortcut changes each k by less than NEGLIGIBLE relative (module docstring; no outside source)
     np.testing.assert_allclose(fast, full, rtol=1e-4)
+
+
+def test_build_date_follows_source_date_epoch(monkeypatch):
+    from retrieve.opacity_build.provenance import build_date
+
+    monkeypatch.setenv("SOURCE_DATE_EPOCH", "1700000000")
+    # reproducible-builds.org convention: seconds since 1970-01-01 UTC (1700000000 = 2023-11-14T22:13:20Z)
+    assert build_date() == "2023-11-14T22:13:20+00:00"
+    assert build_date("2020-01-01") == "2020-01-01"

@@ -141,7 +141,7 @@ def _line_source(args, species):
     import functools
 
     if args.hitran:
-        from ..opacity_build.hitran import HITRAN_MOLECULES, parse_records, iter_record_blocks, read_hitran
+        from ..opacity_build.hitran import HITRAN_MOLECULES, iter_record_blocks, parse_records
 
         isos = None if args.isotopologues.strip().lower() == "all" else _int_list(args.isotopologues)
         if species is None:
