@@ -30,6 +30,12 @@ log = logging.getLogger(__name__)
 INDEX_DRAWS = 1000
 # (x, y) index pairs for the figure, in order of preference: H band, J band, K band
 FIGURE_PAIRS = (("h2o_h", "ch4_h"), ("h2o_j", "ch4_j"), ("h2o_k", "ch4_k"))
+_LABELS = {"h2o": r"H$_2$O", "ch4": r"CH$_4$"}
+
+
+def _label(index: str) -> str:
+    mol, band = index.split("_")
+    return f"{_LABELS.get(mol, mol)}-{band.upper()} index (data)"
 
 
 def _read(path: Path) -> Table | None:
@@ -163,8 +169,7 @@ def survey_figure(summary: Table, path) -> Path | None:
         return None
     x, y = best
     ok = np.isfinite(np.asarray(summary[x], float)) & np.isfinite(np.asarray(summary[y], float))
-    fig = plot_band_diagram(summary[ok], x=x, y=y, name="object", x_label=f"{x} index (data)",
-                            y_label=f"{y} index (data)")
+    fig = plot_band_diagram(summary[ok], x=x, y=y, name="object", x_label=_label(x), y_label=_label(y))
     path = Path(path)
     tmp = path.with_name(path.name + ".tmp.png")
     fig.savefig(tmp, dpi=150)
