@@ -122,6 +122,11 @@ def test_evidence_of_run_with_inference_log_posterior():
     res = evidence_of_run(post, table, log_prob=log_prob, seed=1)
     assert abs(res.ln_z - ln_z) < 0.1
     assert support_bounds(post.priors) == [(-np.inf, np.inf)] * 2    # Gaussian priors are unbounded
+    # the dynesty cross-check on the same LogPosterior (prior transform = inverse CDFs of the priors)
+    pytest.importorskip("dynesty")
+    from retrieve.analysis.evidence import nested_evidence_of_run
+    nested = nested_evidence_of_run(post, nlive=100, dlogz=0.1, seed=2)
+    assert abs(nested.ln_z - ln_z) < 3 * nested.ln_z_err + 0.05
 
 
 class _Decay:

@@ -38,7 +38,7 @@ from .abundance_class import RULE as CLASS_RULE
 from .abundance_class import classify_abundance
 from .band_catalogue import load_catalogue
 from .band_flags import NEGLIGIBLE_LOG_VMR, band_flags_of_run
-from .evidence import evidence_of_run
+from .evidence import evidence_of_run, nested_evidence_of_run
 from .significance import CAVEAT, sigma_from_ln_bayes
 
 log = logging.getLogger(__name__)
@@ -48,7 +48,7 @@ IDENTIFY_DIR = "identify"
 DETECTION_COLUMNS = ("molecule", "ln_bayes_factor", "ln_bayes_factor_err", "significance_sigma",
                      "abundance_class", "log_vmr_median", "log_vmr_lo", "log_vmr_hi", "upper_limit_95",
                      "lower_limit_95", "ln_z_full", "ln_z_full_err", "ln_z_reduced", "ln_z_reduced_err",
-                     "reduced_converged")
+                     "reduced_converged", "ln_bayes_factor_nested", "ln_bayes_factor_nested_err")
 BAND_COLUMNS = ("molecule", "band", "center_um", "window_lo_um", "window_hi_um", "flag", "significance_sigma",
                 "channels", "chi2", "n_channels", "sigma_p16", "sigma_p84")
 
@@ -104,6 +104,7 @@ class _ReducedTask:
     seed: int
     model_factory: object = None
     refit: bool = False
+    nlive: int = 0
 
     def __call__(self) -> dict:
         from ..inference.rundir import MANIFEST, load_run, read_json
@@ -119,8 +120,12 @@ class _ReducedTask:
         run = load_run(self.out_dir, model_factory=self.model_factory)
         ev = _evidence(run, self.n_proposal, self.seed)
         conv = run.manifest.get("convergence", {})
-        return {"molecule": self.molecule, "ln_z": ev.ln_z, "ln_z_err": ev.ln_z_err,
-                "converged": bool(conv.get("converged", False)), "reused": reuse}
+        out = {"molecule": self.molecule, "ln_z": ev.ln_z, "ln_z_err": ev.ln_z_err,
+               "converged": bool(conv.get("converged", False)), "reused": reuse}
+        if self.nlive:
+            nested = nested_evidence_of_run(run.log_posterior, nlive=self.nlive, seed=self.seed)
+            out.update(ln_z_nested=nested.ln_z, ln_z_nested_err=nested.ln_z_err)
+        return out
 
 
 def _run_reduced(tasks, workers: int) -> dict:
@@ -134,7 +139,7 @@ def _run_reduced(tasks, workers: int) -> dict:
     return out
 
 
-def _detection_row(run, molecule, full, reduced) -> dict:
+def _detection_row(run, molecule, full, reduced, full_nested=None) -> dict:
     name = f"log_vmr_{molecule}"
     cls = classify_abundance(run.samples[name], run.config.free[name])
     ln_b = full.ln_z - reduced["ln_z"]
@@ -144,12 +149,15 @@ def _detection_row(run, molecule, full, reduced) -> dict:
             "log_vmr_median": cls.median, "log_vmr_lo": cls.lo, "log_vmr_hi": cls.hi,
             "upper_limit_95": cls.upper_limit_95, "lower_limit_95": cls.lower_limit_95,
             "ln_z_full": full.ln_z, "ln_z_full_err": full.ln_z_err, "ln_z_reduced": reduced["ln_z"],
-            "ln_z_reduced_err": reduced["ln_z_err"], "reduced_converged": reduced["converged"]}
+            "ln_z_reduced_err": reduced["ln_z_err"], "reduced_converged": reduced["converged"],
+            "ln_bayes_factor_nested": (full_nested.ln_z - reduced["ln_z_nested"]) if full_nested else math.nan,
+            "ln_bayes_factor_nested_err": (math.hypot(full_nested.ln_z_err, reduced["ln_z_nested_err"])
+                                           if full_nested else math.nan)}
 
 
 def detections_table(rows, meta: dict) -> Table:
     t = Table(rows=[[r[c] for c in DETECTION_COLUMNS] for r in rows], names=DETECTION_COLUMNS) if rows else \
-        Table(names=DETECTION_COLUMNS, dtype=[str] + [float] * 3 + [str] + [float] * 9 + [bool])
+        Table(names=DETECTION_COLUMNS, dtype=[str] + [float] * 3 + [str] + [float] * 9 + [bool] + [float] * 2)
     for c in ("log_vmr_median", "log_vmr_lo", "log_vmr_hi", "upper_limit_95", "lower_limit_95"):
         t[c].description = "log10 volume mixing ratio"
     t["log_vmr_lo"].description = "16 % quantile of log10 VMR"
@@ -170,7 +178,7 @@ def bands_table(flags, meta: dict) -> Table:
 
 def identify(run_dir, workers: int = 1, max_steps: int | None = None, molecules=None, band_catalogue=None,
              n_proposal: int | None = None, band_draws: int = 60, seed: int = 0, model_factory=None,
-             refit: bool = False) -> IdentifyResult:
+             refit: bool = False, nested_live_points: int = 0) -> IdentifyResult:
     """Detection significance, abundance class and band flags of each molecule of a run.
 
     Parameters
@@ -195,6 +203,9 @@ def identify(run_dir, workers: int = 1, max_steps: int | None = None, molecules=
         For runs made with a custom model (passed to ``load_run`` and the reduced fits).
     refit : bool
         Redo reduced fits even if ``RUN_DIR/identify/without_<X>`` holds a finished one.
+    nested_live_points : int
+        If > 0, also estimate both evidences by nested sampling with dynesty
+        (this many live points) as a cross-check: columns ``ln_bayes_factor_nested(_err)``.
 
     Returns
     -------
@@ -218,14 +229,19 @@ def identify(run_dir, workers: int = 1, max_steps: int | None = None, molecules=
         raise UserError(f"{run_dir}: no absorber with a free log VMR; nothing to identify")
     catalogue = load_catalogue(band_catalogue)
     tasks = [_ReducedTask(reduced_config(run.config, m), run_dir / IDENTIFY_DIR / f"without_{m}", m,
-                          max_steps, n_proposal, seed, model_factory, refit) for m in available]
+                          max_steps, n_proposal, seed, model_factory, refit, int(nested_live_points))
+             for m in available]
     reduced = _run_reduced(tasks, int(workers))
     full = _evidence(run, n_proposal, seed)
-    rows = [_detection_row(run, m, full, reduced[m]) for m in available]
+    full_nested = (nested_evidence_of_run(run.log_posterior, nlive=int(nested_live_points), seed=seed)
+                   if nested_live_points else None)
+    rows = [_detection_row(run, m, full, reduced[m], full_nested) for m in available]
     flags = band_flags_of_run(run.log_posterior, run.samples, available, catalogue, n_draws=band_draws, seed=seed)
     meta = {"caveat": CAVEAT, "evidence_method": "bridge sampling (Meng & Wong 1996; Gronau et al. 2017), "
                                                  "normal proposal on logit/log-transformed parameters",
             "reduced_model": f"log_vmr_<molecule> fixed at {NEGLIGIBLE_LOG_VMR}, all else as in the fit",
+            "nested_cross_check": (f"dynesty, {int(nested_live_points)} live points" if nested_live_points
+                                   else "not run"),
             "abundance_rule": CLASS_RULE, "seed": int(seed),
             "reduced_runs": {m: str(t.out_dir.relative_to(run_dir)) for m, t in zip(available, tasks)},
             "skipped": skipped}

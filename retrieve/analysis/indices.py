@@ -253,10 +253,10 @@ def _object_name(dataset) -> str:
     return dataset.source.stem if dataset.source is not None else dataset.name
 
 
-def data_index_row(dataset, definitions, n_draws: int = DEFAULT_DRAWS, seed: int = 0) -> dict:
+def data_index_row(dataset, definitions, n_draws: int = DEFAULT_DRAWS, seed: int = 0, name: str | None = None) -> dict:
     """``{name, file, source="data", <index>, <index>_err, ...}`` of one spectrum."""
     rng = np.random.default_rng(seed)
-    row = {"name": _object_name(dataset), "file": str(dataset.source or ""), "source": "data"}
+    row = {"name": name or _object_name(dataset), "file": str(dataset.source or ""), "source": "data"}
     for d in definitions:
         v = measure_index(dataset, d, n_draws=n_draws, rng=rng)
         row[d.name], row[f"{d.name}_err"] = v.value, v.err
@@ -290,7 +290,10 @@ def model_index_rows(run, definitions, n_draws: int = 200, seed: int = 0) -> lis
         if ds.kind != "spectrum" or not spectra[ds.name]:
             continue
         m = np.array(spectra[ds.name])
-        row = {"name": f"{run.manifest.get('object', 'object')} model", "file": str(run.run_dir), "source": "model"}
+        obj = run.manifest.get("object", "object")
+        n_spec = sum(d.kind == "spectrum" for d in run.object_data.datasets)
+        label = f"{obj} model" if n_spec == 1 else f"{obj} {ds.name} model"
+        row = {"name": label, "file": str(run.run_dir), "source": "model"}
         for d in definitions:
             vals = index_of_model(m, ds, d)
             row[d.name] = float(np.median(vals))
@@ -300,7 +303,7 @@ def model_index_rows(run, definitions, n_draws: int = 200, seed: int = 0) -> lis
 
 
 def index_table(datasets, definitions=BURGASSER_2006, run=None, n_draws: int = DEFAULT_DRAWS,
-                model_draws: int = 200, seed: int = 0):
+                model_draws: int = 200, seed: int = 0, names=None):
     """Table of spectral indices: one row per spectrum, plus model rows when a run is given.
 
     Parameters
@@ -312,6 +315,8 @@ def index_table(datasets, definitions=BURGASSER_2006, run=None, n_draws: int = D
         Adds the indices of its posterior model spectra (``source = "model"``).
     n_draws, model_draws, seed
         Noise realisations per spectrum, posterior draws of the model, seed.
+    names : sequence of str, optional
+        Row labels of the spectra (default: ``object`` metadata, else the file stem).
 
     Returns
     -------
@@ -320,7 +325,9 @@ def index_table(datasets, definitions=BURGASSER_2006, run=None, n_draws: int = D
         meta holds each definition's windows and source.
     """
     from astropy.table import Table
-    rows = [data_index_row(ds, definitions, n_draws, seed + i) for i, ds in enumerate(datasets)]
+    names = list(names) if names is not None else [None] * len(datasets)
+    rows = [data_index_row(ds, definitions, n_draws, seed + i, name=nm)
+            for i, (ds, nm) in enumerate(zip(datasets, names))]
     if run is not None:
         rows += model_index_rows(run, definitions, model_draws, seed)
     names = ["name", "file", "source"] + [c for d in definitions for c in (d.name, f"{d.name}_err")]

@@ -83,14 +83,17 @@ def run(args: argparse.Namespace) -> int:
     out = _check_target(args.out, args.overwrite, "--out") if args.out else None
     plot = _check_target(args.plot, args.overwrite, "--plot") if args.plot else None
     defs = _definitions(args)
-    run = None
+    run, names = None, None
     datasets = [read_dataset(p) for p in args.spectra]
     if args.run:
         from ..inference.rundir import load_run
         run = load_run(args.run)
-        if not datasets:
+        if not datasets:      # the run's fitted spectra, labelled with the run's object
             datasets = [d for d in run.object_data.datasets if d.kind == "spectrum"]
-    table = index_table(datasets, defs, run=run, n_draws=args.draws, model_draws=args.model_draws, seed=args.seed)
+            obj = run.manifest.get("object", "object")
+            names = [obj if len(datasets) == 1 else f"{obj} {d.name}" for d in datasets]
+    table = index_table(datasets, defs, run=run, n_draws=args.draws, model_draws=args.model_draws,
+                        seed=args.seed, names=names)
     _print(table)
     if out is not None:
         buf = io.StringIO()

@@ -24,6 +24,9 @@ def register(subparsers) -> None:
                    help="bridge-sampling proposal draws (default: as many as posterior samples used)")
     p.add_argument("--seed", type=int, default=0, metavar="S", help="seed of the evidence and band draws (0)")
     p.add_argument("--refit", action="store_true", help="redo reduced fits even if finished ones exist")
+    p.add_argument("--nested", type=int, default=0, metavar="NLIVE",
+                   help="also estimate the evidences with dynesty nested sampling using NLIVE live points "
+                        "(cross-check; needs dynesty)")
     p.set_defaults(func=run)
 
 
@@ -38,7 +41,8 @@ def run(args: argparse.Namespace) -> int:
     molecules = [m.strip() for m in args.molecules.split(",") if m.strip()] if args.molecules else None
     res = identify(args.run_dir, workers=args.workers, max_steps=args.max_steps, molecules=molecules,
                    band_catalogue=args.band_catalogue, n_proposal=args.proposal_draws,
-                   band_draws=args.band_draws, seed=args.seed, refit=args.refit)
+                   band_draws=args.band_draws, seed=args.seed, refit=args.refit,
+                   nested_live_points=args.nested)
     print(f"{'molecule':<9} {'ln B':>9} {'±':>6} {'sigma':>6}  {'abundance':<14} log VMR")
     for r in res.detections:
         if r["abundance_class"] == "upper limit":
@@ -49,6 +53,9 @@ def run(args: argparse.Namespace) -> int:
             vmr = f"{_fmt(r['log_vmr_median'])} [{_fmt(r['log_vmr_lo'])}, {_fmt(r['log_vmr_hi'])}]"
         print(f"{r['molecule']:<9} {r['ln_bayes_factor']:>9.2f} {r['ln_bayes_factor_err']:>6.2f} "
               f"{r['significance_sigma']:>6.1f}  {r['abundance_class']:<14} {vmr}")
+        if args.nested:
+            print(f"{'':<9} nested sampling: ln B = {r['ln_bayes_factor_nested']:.2f} "
+                  f"± {r['ln_bayes_factor_nested_err']:.2f}")
     flagged = [b for b in res.bands if b["flag"] in ("detected", "tentative")]
     if flagged:
         print("bands:")
