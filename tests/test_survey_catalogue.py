@@ -274,3 +274,23 @@ def test_identification_after_a_finished_fit_without_refitting(demo, tmp_path):
     # the summary copies the identification step's numbers
     assert row["sigma_H2O"] == pytest.approx(float(det["significance_sigma"][0]))
     assert row["ln_b_H2O"] == pytest.approx(float(det["ln_bayes_factor"][0]))
+
+
+def test_object_logs_of_concurrent_threads_stay_apart(tmp_path):
+    import logging
+    import threading
+    from retrieve.survey.progress import object_log
+    barrier = threading.Barrier(2)
+
+    def work(name):
+        with object_log(tmp_path / f"{name}.log", name):
+            barrier.wait()
+            logging.getLogger("retrieve.inference").warning("message of %s", name)
+            barrier.wait()
+    threads = [threading.Thread(target=work, args=(n,)) for n in ("a", "b")]
+    for t in threads:
+        t.start()
+    for t in threads:
+        t.join()
+    assert "message of a" in (tmp_path / "a.log").read_text() and "message of b" not in (tmp_path / "a.log").read_text()
+    assert "message of b" in (tmp_path / "b.log").read_text() and "message of a" not in (tmp_path / "b.log").read_text()

@@ -141,6 +141,9 @@ def object_log(path, name: str):
     path.parent.mkdir(parents=True, exist_ok=True)
     handler = logging.FileHandler(path, encoding="utf-8")
     handler.setFormatter(logging.Formatter("%(asctime)s %(levelname)s %(name)s: %(message)s"))
+    # a worker with several threads runs several objects at once: keep each log to its own thread
+    thread = threading.get_ident()
+    handler.addFilter(lambda record: record.thread == thread)
     loggers = [logging.getLogger("retrieve"), logging.getLogger("py.warnings")]
     old_levels = [lg.level for lg in loggers]
     for lg in loggers:
