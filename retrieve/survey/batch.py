@@ -414,7 +414,7 @@ def run_survey(catalogue, config, out_dir, workers: int | None = None, scheduler
         if client is None:
             client = stack.enter_context(survey_client(settings, workers, scheduler))
         info["scheduler"] = client.scheduler.address
-        info["workers"] = len(client.scheduler_info(n_workers=-1).get("workers", {}))
+        info["workers"] = _n_workers(client)
         _write_json(out / SURVEY_JSON, {**info, "status": "running"})
         t_dispatch = time.monotonic()
         _dispatch(client, tasks, progress, out)
@@ -431,6 +431,14 @@ def run_survey(catalogue, config, out_dir, workers: int | None = None, scheduler
     _write_json(out / SURVEY_JSON, {**info, "status": "finished", "finished_utc": now_utc(), "wall_time_s": elapsed,
                                     "dispatch_s": dispatch_s, "summary_s": summary_s, "counts": progress.counts()})
     return SurveyResult(out, status, summary, figure, elapsed, dispatch_s, summary_s)
+
+
+def _n_workers(client) -> int:
+    try:
+        workers = client.scheduler_info(n_workers=-1).get("workers", {})
+    except TypeError:  # distributed before the n_workers argument (it listed all workers then)
+        workers = client.scheduler_info().get("workers", {})
+    return len(workers)
 
 
 def _dispatch(client, tasks: list[ObjectTask], progress: SurveyProgress, out: Path) -> None:
