@@ -63,7 +63,7 @@ def write_tables(folder: Path) -> Path:
 
 
 def simulate(folder: Path, params=None, n: int = 16, lo: float = 1.0, hi: float = 1.7, snr: float = 30.0,
-             seed: int = 0, name: str = "ifs") -> Path:
+             seed: int = 0, name: str = "ifs", layers: int = 12) -> Path:
     """Simulated spectrum from the real ForwardModel on the synthetic tables, written to ``folder/<name>.ecsv``."""
     from retrieve.forward_model import ForwardModel, ModelSpec
     from retrieve.opacity.opacity_set import OpacitySet
@@ -72,7 +72,7 @@ def simulate(folder: Path, params=None, n: int = 16, lo: float = 1.0, hi: float 
     wl = np.linspace(lo, hi, n)
     probe = Dataset(name, "spectrum", wl, np.ones(n), np.ones(n), resolving_power=40.0)
     spec = ModelSpec.from_mapping({"absorbers": ["H2O"], "profile": "isothermal", "cia": [], "hminus": False,
-                                   "rayleigh": False, "layers": 12}, "sim")
+                                   "rayleigh": False, "layers": layers}, "sim")
     model = ForwardModel(spec, [probe], opacity=OpacitySet.load(["H2O"], [], folder / "tables"))
     flux = model.evaluate(params).per_dataset[name]
     sigma = flux / snr
