@@ -1,5 +1,4 @@
 """Band catalogue: shipped file, user extension, and band positions against HITRAN2020 line lists."""
-import math
 from pathlib import Path
 
 import numpy as np

@@ -30,7 +30,6 @@ import logging
 import math
 from pathlib import Path
 
-import numpy as np
 from astropy.table import Table
 
 from ..errors import UserError
@@ -188,7 +187,8 @@ def identify(run_dir, workers: int = 1, max_steps: int | None = None, molecules=
     workers : int
         Processes running the reduced fits in parallel.
     max_steps : int, optional
-        Cap on the reduced fits' emcee steps (default: the run's ``[sampler] max_steps``).
+        Cap on the reduced fits' emcee steps (default: as many steps as the full
+        fit took, which has one dimension more).
     molecules : sequence of str, optional
         Subset of the run's free absorbers (default: all).
     band_catalogue : path-like, optional
@@ -228,6 +228,8 @@ def identify(run_dir, workers: int = 1, max_steps: int | None = None, molecules=
     if not available:
         raise UserError(f"{run_dir}: no absorber with a free log VMR; nothing to identify")
     catalogue = load_catalogue(band_catalogue)
+    if max_steps is None:
+        max_steps = int(run.manifest.get("convergence", {}).get("n_steps") or run.config.sampler.max_steps)
     tasks = [_ReducedTask(reduced_config(run.config, m), run_dir / IDENTIFY_DIR / f"without_{m}", m,
                           max_steps, n_proposal, seed, model_factory, refit, int(nested_live_points))
              for m in available]

@@ -16,7 +16,8 @@ def register(subparsers) -> None:
                     "RUN_DIR/detections.ecsv and RUN_DIR/bands.ecsv; reduced fits go to RUN_DIR/identify/.")
     p.add_argument("run_dir", metavar="RUN_DIR", help="run folder written by 'retrieve fit'")
     p.add_argument("--workers", type=int, default=1, metavar="N", help="reduced fits run in parallel (default 1)")
-    p.add_argument("--max-steps", type=int, metavar="N", help="cap the reduced fits' emcee steps")
+    p.add_argument("--max-steps", type=int, metavar="N",
+                   help="cap the reduced fits' emcee steps (default: the steps the full fit took)")
     p.add_argument("--molecules", metavar="LIST", help="comma-separated subset, e.g. H2O,CH4 (default: all)")
     p.add_argument("--band-catalogue", metavar="FILE", help="extra bands (TOML, layout of retrieve/data/bands.toml)")
     p.add_argument("--band-draws", type=int, default=60, metavar="N", help="posterior draws for band flags (60)")
