@@ -88,7 +88,16 @@ def test_identify_matches_quadrature_bayes_factors(tmp_path):
     cfg = load_config(tmp_path / "fit.toml")
     factory = TwoAbsorbersFactory()
     fit(cfg, out_dir=tmp_path / "run", model_factory=factory, progress=False)
-    res = identify(tmp_path / "run", workers=2, model_factory=factory, band_draws=20, seed=1)
+    cat = tmp_path / "toy_bands.toml"
+    cat.write_text("".join(f'''
+[[band]]
+molecule = "{m}"
+band = "{c}um"
+center_um = {c}
+window_um = [{c - 0.06:.3f}, {c + 0.06:.3f}]
+source = "test band of the toy model"
+''' for m, c in CENTRES.items()))
+    res = identify(tmp_path / "run", workers=2, model_factory=factory, band_draws=20, seed=1, band_catalogue=cat)
 
     det = Table.read(tmp_path / "run" / "detections.ecsv")
     assert list(det["molecule"]) == ["X", "Y"]
@@ -109,6 +118,12 @@ def test_identify_matches_quadrature_bayes_factors(tmp_path):
     assert set(bands.colnames) >= {"molecule", "band", "center_um", "window_lo_um", "window_hi_um", "flag",
                                    "significance_sigma", "channels"}
     assert len(res.bands) == len(bands)
+    flag = {str(r["molecule"]): str(r["flag"]) for r in bands}
+    assert flag == {"X": "detected", "Y": "not detected"}, flag
+    # the spectrum figure shades exactly the detected bands (FIGURES' reader of bands.ecsv)
+    from retrieve.plotting.spectrum_plot import flagged_bands
+    shaded = {(m, b) for m, b, _, _ in flagged_bands(bands)}
+    assert shaded == {(str(r["molecule"]), str(r["band"])) for r in bands if r["flag"] == "detected"}
 
     assert np.all(np.isnan(det["ln_bayes_factor_nested"]))     # cross-check not asked for
 
