@@ -32,7 +32,7 @@ def test_hitran_records_match_the_raw_text_fields(reference_dir):
         raw = _raw_fields(text[i])
         for key, value in raw.items():
             # source: the record text itself, HITRAN 2004 column layout (Rothman et al. 2005, Table 1)
-            assert parsed[key][i] == pytest.approx(value, rel=1e-12, abs=1e-15), (i, key)
+            assert parsed[key][i] == pytest.approx(value, rel=1e-12, abs=0.0), (i, key)
     # source: README of the reference sample - 1344 lines of the main isotopologue, 6 isotopologues
     assert np.sum(parsed["isotopologue"] == 1) == 1344
     assert set(np.unique(parsed["isotopologue"])) == {1, 2, 3, 4, 5, 6}
@@ -194,7 +194,7 @@ def test_cia_reader_and_binning(tmp_path):
         ref = np.interp(1e4 / lam, blocks[0][1], blocks[0][2], left=0, right=0)
         if ref.mean() > 0:
             # common practice, no source: bin value = average over the bin of the tabulated curve
-            assert k300[b] == pytest.approx(ref.mean(), rel=2e-3)
+            assert k300[b] == pytest.approx(ref.mean(), rel=2e-3, abs=0.0)
     # the second range (7000-9000 cm⁻¹) has only T = 500 K: held at that value at 300 K
     in_second = (1e4 / table.wavelength_um > 7100) & (1e4 / table.wavelength_um < 8900)
     np.testing.assert_allclose(table.log10_value[0][in_second], table.log10_value[1][in_second])
@@ -262,3 +262,15 @@ def test_cli_cia_build_and_info(tmp_path, capsys):
     text = capsys.readouterr().out
     # the file's own header values (pair, temperatures) and a verified checksum
     assert "H2-H2" in text and "300-1000 K, 3 values" in text and "checksum:    OK" in text
+
+
+def test_hitran_ch4_nu3_band_totals(reference_dir):
+    folder = reference_dir / "hitran" / "ch4_nu3"
+    path = folder / "CH4_M6_I1_0_0_0_0_1A1_to_0_0_1_0_1F2.par"
+    ll = concatenate(read_hitran(path, partition=Q_FLAT, chunk_lines=2000))
+    assert ll.species == "CH4" and ll.mass_amu == pytest.approx(16.0313)
+    # source: ../shared/reference/README.md table (HITRAN2020 ν3 band of 12CH4): 6489 lines,
+    # 2731-3254 cm⁻¹, Σ S(296 K) = 1.082e-17 cm/molecule
+    assert len(ll) == 6489
+    assert ll.wavenumber_cm.min() == pytest.approx(2731, abs=1) and ll.wavenumber_cm.max() == pytest.approx(3254, abs=1)
+    assert ll.strength_ref.sum() == pytest.approx(1.082e-17, rel=1e-3, abs=0.0)

@@ -128,6 +128,9 @@ def run_build(args: argparse.Namespace) -> int:
     kinds = {"xsec": ("cross_section",), "ktable": ("ktable",), "both": ("cross_section", "ktable")}[args.kind]
     if not args.stream and _expected_lines(inputs) <= STREAM_ABOVE_LINES:
         source = _hold_in_memory(source)
+        if not source:
+            raise UserError(f"opacity build: no {species} lines of the selected isotopologues in "
+                            f"{', '.join(str(p) for p in inputs)}; check --isotopologues")
     prov = make_provenance(inputs, grid.as_dict(), args.date, extra={"reader": options})
     tables = build_tables(source, grid, species, kinds, prov, progress=not args.no_progress,
                           n_workers=args.workers or default_workers())
