@@ -21,13 +21,13 @@ from retrieve.observations.writers import write_dataset
 
 ROOT = Path(__file__).resolve().parents[1]
 TABLES = ROOT / "opacity_tables"
-ABSORBERS = ("CH4", "CO")
+ABSORBERS = ("H2O", "CH4", "CO")
 NEEDED = [f"{s}.xsec.h5" for s in ABSORBERS] + ["H2-H2.cia.h5", "H2-He.cia.h5"]
 MODEL = {"absorbers": list(ABSORBERS), "profile": "guillot", "cia": ["H2-H2", "H2-He"], "hminus": False,
          "rayleigh": True, "layers": 14, "angles": 1, "pressure_range_bar": [1e-4, 30.0]}
 FIXED = {"log_g": 4.5, "distance_pc": 10.0, "t_irr": 10.0, "log_kappa_ir": -2.5, "log_gamma": -1.0}
-COOL = {**FIXED, "t_int": 900.0, "radius_rjup": 1.0, "log_vmr_CH4": -3.4, "log_vmr_CO": -8.0}
-HOT = {**FIXED, "t_int": 1800.0, "radius_rjup": 1.0, "log_vmr_CH4": -30.0, "log_vmr_CO": -3.3}
+COOL = {**FIXED, "t_int": 900.0, "radius_rjup": 1.0, "log_vmr_H2O": -3.3, "log_vmr_CH4": -3.4, "log_vmr_CO": -8.0}
+HOT = {**FIXED, "t_int": 1800.0, "radius_rjup": 1.0, "log_vmr_H2O": -3.3, "log_vmr_CH4": -30.0, "log_vmr_CO": -3.3}
 SNR = 20.0
 
 
