@@ -116,9 +116,9 @@ def test_spectrum_figure_content(rng):
     draws = best["ifs"][None, :] * (1 + 0.03 * rng.normal(size=(300, 1)))
     envelopes = {"ifs": Envelope.from_draws(draws), "phot": Envelope.from_draws(best["phot"][None, :]
                                                                                  * (1 + 0.03 * rng.normal(size=(300, 1))))}
-    bands = Table({"molecule": ["H2O", "CH4", "CO"], "band": ["1.4um", "1.6um", "2.3um"],
-                   "flag": ["present", "present", "absent"],
-                   "wavelength_min_um": [1.33, 1.60, 2.29], "wavelength_max_um": [1.50, 1.72, 2.40]})
+    bands = Table({"molecule": ["H2O", "CH4", "CO", "CH4"], "band": ["1.4um", "1.6um", "2.3um", "1.15um"],
+                   "flag": ["detected", "detected", "not detected", "tentative"],
+                   "window_lo_um": [1.33, 1.60, 2.29, 1.10], "window_hi_um": [1.50, 1.72, 2.40, 1.20]})
     fig = plot_spectrum(datasets, best, envelopes=envelopes, bands=bands)
     ax, axr = fig.axes
     assert "wavelength" in axr.get_xlabel() and "sigma" in axr.get_ylabel()
@@ -127,9 +127,14 @@ def test_spectrum_figure_content(rng):
     assert sum(isinstance(c, PolyCollection) for c in ax.collections) >= 2
     # the two flagged bands are shaded and labelled; the absent CO band is not
     gids = sorted(p.get_gid() for p in ax.patches if p.get_gid())
-    assert gids == ["band:CH4:1.6um", "band:H2O:1.4um"]
+    assert gids == ["band:CH4:1.15um:tentative", "band:CH4:1.6um", "band:H2O:1.4um"]
     texts = [t.get_text() for t in ax.texts]
-    assert "H$_{2}$O" in texts and "CH$_{4}$" in texts and not any("CO" == t for t in texts)
+    assert "H$_{2}$O" in texts and "CH$_{4}$" in texts and "CH$_{4}$?" in texts
+    assert not any(t.startswith("CO") for t in texts)
+    # patches span exactly the band windows of the table
+    h2o = [p for p in ax.patches if p.get_gid() == "band:H2O:1.4um"][0]
+    xs = h2o.get_path().vertices[:, 0] if not hasattr(h2o, "get_x") else [h2o.get_x(), h2o.get_x() + h2o.get_width()]
+    assert np.isclose(min(xs), 1.33) and np.isclose(max(xs), 1.50)
     # residuals are (data − model)/σ, point by point (definition; common practice, no source)
     lines = [ln for ln in axr.get_lines() if len(ln.get_xdata()) == 40]
     expected = (datasets[0].flux - best["ifs"]) / datasets[0].uncertainty
@@ -224,3 +229,16 @@ def test_parameter_labels_carry_units():
     assert style.parameter_label("t_knot_3") == "$T_{3}$ [K]"
     assert "VMR" in style.parameter_label("log_vmr_CH4") and "_{4}" in style.parameter_label("log_vmr_CH4")
     assert style.parameter_label("brand_new_name") == "brand_new_name"
+
+
+def test_photometry_envelope_may_exclude_the_best_fit(rng):
+    # the MAP model need not lie inside the predictive interval; the figure must still draw
+    datasets, best = _datasets(rng)
+    env = {"phot": Envelope(lo1=best["phot"] * 1.1, hi1=best["phot"] * 1.2, lo2=best["phot"] * 1.05,
+                            hi2=best["phot"] * 1.3)}
+    fig = plot_spectrum(datasets, best, envelopes=env)
+    bars = [c for c in fig.axes[0].collections if c.get_linewidth()[0] == 7]
+    assert len(bars) == 2
+    seg = np.asarray(bars[1].get_segments()[0])
+    factor, _ = style.flux_scale(np.concatenate([d.flux for d in datasets]))
+    np.testing.assert_allclose(seg[:, 1] * factor, [best["phot"][0] * 1.1, best["phot"][0] * 1.2])

@@ -147,7 +147,12 @@ def profile_figure(run, n_draws: int = 80, seed: int = 0):
 
 
 def upper_limit_classes(run, detections: Table | None = None) -> dict[str, bool]:
-    """Which abundances are upper limits: from the detections table, else the prior-edge rule."""
+    """Which abundances are upper limits.
+
+    From the identification step's ``detections.ecsv`` (column ``abundance_class``) when present,
+    else :func:`retrieve.analysis.abundance_class.classify_abundance`, else the prior-edge rule
+    :data:`UPPER_LIMIT_EDGE_FRACTION`.
+    """
     mols = molecules(run)
     if detections is None:
         detections = read_optional_table(run.run_dir, DETECTIONS)
@@ -156,12 +161,20 @@ def upper_limit_classes(run, detections: Table | None = None) -> dict[str, bool]
         for row in detections:
             classes[str(row["molecule"])] = "upper" in str(row["abundance_class"]).lower()
     priors = run.config.free
+    try:  # the identification step's rule, when that module is installed
+        from ..analysis.abundance_class import classify_abundance
+    except ImportError:
+        classify_abundance = None
     for mol in mols:
         if mol in classes:
             continue
-        low, high = priors[f"log_vmr_{mol}"].bounds
+        prior = priors[f"log_vmr_{mol}"]
         x = np.asarray(run.samples[f"log_vmr_{mol}"], float)
-        classes[mol] = bool(np.percentile(x, 2.5) - low < UPPER_LIMIT_EDGE_FRACTION * (high - low))
+        if classify_abundance is not None:
+            classes[mol] = classify_abundance(x, prior=prior).label == "upper limit"
+        else:
+            low, high = prior.bounds
+            classes[mol] = bool(np.percentile(x, 2.5) - low < UPPER_LIMIT_EDGE_FRACTION * (high - low))
     return classes
 
 

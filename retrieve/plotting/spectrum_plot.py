@@ -25,6 +25,8 @@ TWO_SIGMA = 0.954500
 
 #: Values of a bands-table ``flag`` column that mean "shade this band".
 PRESENT_FLAGS = {"present", "detected", "yes", "true", "1", "flagged"}
+#: Values shaded more lightly, hatched, and labelled with a question mark.
+TENTATIVE_FLAGS = {"tentative"}
 
 
 @dataclasses.dataclass
@@ -87,26 +89,47 @@ def _band_limits(row) -> tuple[float, float] | None:
     return None
 
 
-def flagged_bands(bands) -> list[tuple[str, str, float, float]]:
+def flagged_bands(bands, tentative: bool = False) -> list[tuple]:
     """``(molecule, band, lo_um, hi_um)`` of the rows of a bands table that are flagged.
 
     A row is flagged when its ``flag`` column is a true boolean or one of
     :data:`PRESENT_FLAGS`; rows without a wavelength window are skipped.
+    With ``tentative`` the tuples get a fifth element, True for rows whose
+    flag is in :data:`TENTATIVE_FLAGS` (those rows are then included too).
     """
     out = []
     if bands is None:
         return out
     for row in bands:
         flag = row["flag"] if "flag" in row.colnames else True
+        is_tentative = False
         if isinstance(flag, (bool, np.bool_)):
             keep = bool(flag)
         else:
-            keep = str(flag).strip().lower() in PRESENT_FLAGS
+            word = str(flag).strip().lower()
+            is_tentative = tentative and word in TENTATIVE_FLAGS
+            keep = word in PRESENT_FLAGS or is_tentative
         limits = _band_limits(row)
         if keep and limits is not None:
             band = str(row["band"]) if "band" in row.colnames else ""
-            out.append((str(row["molecule"]), band, limits[0], limits[1]))
+            item = (str(row["molecule"]), band, limits[0], limits[1])
+            out.append(item + (is_tentative,) if tentative else item)
     return out
+
+
+def _data_extent(datasets, margin_um: float = 0.04) -> tuple[float, float]:
+    """Wavelength range covered by the channels and filter half-maximum widths, plus a margin."""
+    lo, hi = np.inf, -np.inf
+    for d in datasets:
+        w = d.wavelength_um
+        if d.kind == "photometry":
+            xerr = _photometry_xerr(d)
+            if xerr is not None:
+                lo, hi = min(lo, float(np.min(w - xerr[0]))), max(hi, float(np.max(w + xerr[1])))
+        if d.channel_edges_um is not None:
+            lo, hi = min(lo, float(np.min(d.channel_edges_um))), max(hi, float(np.max(d.channel_edges_um)))
+        lo, hi = min(lo, float(w.min())), max(hi, float(w.max()))
+    return lo - margin_um, hi + margin_um
 
 
 def _residual_sigma(dataset) -> np.ndarray:
@@ -149,14 +172,21 @@ def plot_spectrum(datasets: Sequence, best_fit: Mapping[str, np.ndarray],
         ax, axr = fig.subplots(2, 1, sharex=True, gridspec_kw={"height_ratios": [3.2, 1.0]})
         if highres is not None:
             w, f = (np.asarray(a, dtype=float) for a in highres)
-            lo, hi = min(d.wavelength_um.min() for d in datasets), max(d.wavelength_um.max() for d in datasets)
-            sel = (w >= lo - 0.3) & (w <= hi + 0.3)
+            lo, hi = _data_extent(datasets)
+            sel = (w >= lo) & (w <= hi)
             ax.plot(w[sel], f[sel] / factor, color=style.RUST, lw=0.6, alpha=0.45, zorder=1,
                     label="best fit (model grid)")
         for i, d in enumerate(datasets):
             _draw_dataset(ax, axr, d, np.asarray(best_fit[d.name], dtype=float), envelopes.get(d.name),
                           factor, first=(i == 0))
-        _shade_bands(ax, axr, flagged_bands(bands))
+        _shade_bands(ax, axr, flagged_bands(bands, tentative=True))
+        # the y range follows the data, models and envelopes, not spikes of the model-grid curve
+        top = max(float(np.nanmax(np.concatenate([d.flux + _residual_sigma(d), best_fit[d.name]] +
+                                                 ([envelopes[d.name].hi2] if d.name in envelopes else []))))
+                  for d in datasets)
+        bottom = min(float(np.nanmin(d.flux - _residual_sigma(d))) for d in datasets)
+        ax.set_ylim(min(0.0, bottom / factor), 1.12 * top / factor)
+        ax.set_xlim(*_data_extent(datasets))
         axr.axhline(0.0, color=style.INK, lw=0.7)
         for level in (-2, 2):
             axr.axhline(level, color=style.INK, lw=0.5, ls=":")
@@ -176,10 +206,9 @@ def _draw_dataset(ax, axr, d, model, envelope, factor, first):
         xerr = _photometry_xerr(d)
         ax.errorbar(w, d.flux / factor, yerr=sigma / factor, xerr=xerr, fmt="s", ms=5, color=style.LAGOON,
                     mfc="white", mew=1.2, capsize=0, lw=1.0, zorder=4, label=f"{d.name} (photometry)")
-        if envelope is not None:
-            ax.errorbar(w, model / factor,
-                        yerr=[(model - envelope.lo2) / factor, (envelope.hi2 - model) / factor],
-                        fmt="none", ecolor=style.OCHRE, elinewidth=5, alpha=0.45, zorder=2)
+        if envelope is not None:  # predictive intervals as bars (the MAP model may lie outside them)
+            ax.vlines(w, envelope.lo2 / factor, envelope.hi2 / factor, color=style.OCHRE, lw=7, alpha=0.3, zorder=2)
+            ax.vlines(w, envelope.lo1 / factor, envelope.hi1 / factor, color=style.OCHRE, lw=7, alpha=0.6, zorder=2)
         ax.plot(w, model / factor, "D", ms=4, color=style.RUST, zorder=3,
                 label="best fit" if first else None)
         axr.errorbar(w, (d.flux - model) / sigma, yerr=1.0, xerr=xerr, fmt="s", ms=4, color=style.LAGOON,
@@ -197,12 +226,14 @@ def _draw_dataset(ax, axr, d, model, envelope, factor, first):
 
 
 def _shade_bands(ax, axr, bands):
+    """Shade flagged bands (tentative ones lighter and hatched, labelled with "?")."""
     seen = {}
-    for molecule, band, lo, hi in bands:
-        colour = style.molecule_colour(molecule, len(seen))
-        patch = ax.axvspan(lo, hi, color=colour, alpha=0.16, lw=0, zorder=0)
-        patch.set_gid(f"band:{molecule}:{band}")
-        axr.axvspan(lo, hi, color=colour, alpha=0.12, lw=0, zorder=0)
-        ax.text(0.5 * (lo + hi), 0.97, style.molecule_tex(molecule), transform=ax.get_xaxis_transform(),
-                ha="center", va="top", fontsize=8, color=colour, fontweight="bold")
-        seen[molecule] = colour
+    for molecule, band, lo, hi, tentative in bands:
+        colour = seen.setdefault(molecule, style.molecule_colour(molecule, len(seen)))
+        patch = ax.axvspan(lo, hi, facecolor=colour, alpha=0.08 if tentative else 0.16, lw=0, zorder=0,
+                           hatch="///" if tentative else None, edgecolor=colour if tentative else None)
+        patch.set_gid(f"band:{molecule}:{band}" + (":tentative" if tentative else ""))
+        axr.axvspan(lo, hi, color=colour, alpha=0.06 if tentative else 0.12, lw=0, zorder=0)
+        ax.text(0.5 * (lo + hi), 0.97, style.molecule_tex(molecule) + ("?" if tentative else ""),
+                transform=ax.get_xaxis_transform(), ha="center", va="top", fontsize=8, color=colour,
+                fontweight="bold")
