@@ -23,6 +23,7 @@ COMMAND_MODULES = [
     "opacity",
     "plot",
     "report",
+    "demo",
     "batch",
     "identify",
     "bands",
