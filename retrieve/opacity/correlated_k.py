@@ -17,6 +17,27 @@ import numpy as np
 _MAX_BLOCK = 2_000_000
 
 
+def _sort_with_index(values: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
+    """Sort along the last axis, returning sorted values and the original positions.
+
+    For non-negative float64 the int64 bit pattern is monotonic, so the position is packed
+    into the lowest mantissa bits and one ``np.sort`` replaces argsort + gather (about twice
+    as fast); the values lose those bits (relative change < 2^-40).
+    """
+    m = values.shape[-1]
+    bits = max(1, int(np.ceil(np.log2(m))))
+    if bits > 12 or np.any(values < 0):
+        order = np.argsort(values, axis=-1)
+        return np.take_along_axis(values, order, axis=-1), order
+    mask = np.int64((1 << bits) - 1)
+    packed = np.ascontiguousarray(values, dtype=np.float64).view(np.int64) & ~mask
+    packed |= np.arange(m, dtype=np.int64)
+    packed.sort(axis=-1)
+    order = packed & mask
+    packed &= ~mask
+    return packed.view(np.float64), order
+
+
 def _rebin_sorted(values: np.ndarray, weights: np.ndarray, edges: np.ndarray) -> np.ndarray:
     """Average piecewise-constant k(g) given as (values, weights) over g-bins with ``edges``.
 
@@ -24,8 +45,7 @@ def _rebin_sorted(values: np.ndarray, weights: np.ndarray, edges: np.ndarray) ->
     edges : (n_g + 1,) ascending from 0 to 1.
     Returns (..., n_g).
     """
-    order = np.argsort(values, axis=-1)
-    k = np.take_along_axis(values, order, axis=-1)
+    k, order = _sort_with_index(values)
     w = weights[order]
     cw = np.cumsum(w, axis=-1)
     ck = np.cumsum(k * w, axis=-1)
