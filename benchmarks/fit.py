@@ -97,7 +97,8 @@ def simulate(folder: Path, opacity_dir: str, layers: int, seed: int = 1) -> tupl
     return paths[0], paths[1]
 
 
-def config_text(opacity_dir: str, layers: int, ifs_sigma: float, max_steps: int, seed: int) -> str:
+def config_text(opacity_dir: str, layers: int, ifs_sigma: float, max_steps: int, seed: int,
+                moves: str = "stretch") -> str:
     def val(v):
         return json.dumps(v)
     lines = ["[object]", 'name = "benchmark"', "", "[model]"]
@@ -109,7 +110,8 @@ def config_text(opacity_dir: str, layers: int, ifs_sigma: float, max_steps: int,
     lines.append(f'log_inflate_ifs = {{ prior = "uniform", low = {b - 4:.2f}, high = {b + 2:.2f} }}')
     lines += ["", "[[datasets]]", 'name = "ifs"', 'file = "ifs.ecsv"', "inflate_errors = true",
               "", "[[datasets]]", 'name = "phot"', 'file = "phot.ecsv"',
-              "", "[sampler]", f"max_steps = {max_steps}", "check_every = 250", f"seed = {seed}"]
+              "", "[sampler]", f"max_steps = {max_steps}", "check_every = 250", f"seed = {seed}",
+              f'moves = "{moves}"']
     return "\n".join(lines) + "\n"
 
 
@@ -119,6 +121,8 @@ def main(argv=None) -> int:
     ap.add_argument("--max-steps", type=int, default=40000)
     ap.add_argument("--layers", type=int, default=80)
     ap.add_argument("--seed", type=int, default=0)
+    ap.add_argument("--moves", default="differential-evolution", choices=("stretch", "differential-evolution"),
+                    help="emcee proposal ([sampler] moves); the stretch move mixes poorly here")
     ap.add_argument("--keep", metavar="RUN_DIR", help="write the run folder here (default: a temporary folder)")
     args = ap.parse_args(argv)
     from retrieve.inference import fit
@@ -132,13 +136,14 @@ def main(argv=None) -> int:
         ifs, _ = simulate(tmp, opacity_dir, args.layers)
         sigma = float(np.median(read_dataset(ifs).uncertainty))
         cfg = tmp / "fit.toml"
-        cfg.write_text(config_text(opacity_dir, args.layers, sigma, args.max_steps, args.seed))
+        cfg.write_text(config_text(opacity_dir, args.layers, sigma, args.max_steps, args.seed, args.moves))
         out = Path(args.keep) if args.keep else tmp / "run"
         t0 = time.perf_counter()
         res = fit(cfg, out_dir=out, workers=args.workers, overwrite=bool(args.keep))
         wall = time.perf_counter() - t0
         manifest = json.loads((out / "manifest.json").read_text())
         print(f"opacity: {source}")
+        print(f"moves: {args.moves}; layers: {args.layers}")
         print(f"free parameters: {len(manifest['param_names'])} ({', '.join(manifest['param_names'])})")
         print(f"{'converged' if res.converged else 'NOT converged'} after {res.n_steps} steps x {res.n_walkers} "
               f"walkers; tau max {np.max(res.tau):.1f}; acceptance {res.acceptance_fraction:.2f}")

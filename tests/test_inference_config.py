@@ -64,6 +64,7 @@ BAD = {
     "few-walkers": (_edit("max_steps = 200", "max_steps = 200\nwalkers = 4"), "fewer than 2 × 3 free parameters"),
     "bad-optimiser": (_edit("max_steps = 200", 'max_steps = 200\noptimiser = "diferential-evolution"'),
                       "did you mean 'differential-evolution'?"),
+    "bad-moves": (_edit("max_steps = 200", 'max_steps = 200\nmoves = "strech"'), "did you mean 'stretch'?"),
     "no-free-parameter": ("[parameters]\nlog_g = 4.0\n", "no free parameter"),
     "not-toml": ("[parameters\nlog_g = 4.0\n", "not valid TOML"),
 }

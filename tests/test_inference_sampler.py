@@ -62,6 +62,22 @@ def test_linear_gaussian_posterior_is_recovered(linear_data, tmp_path):
     assert np.all(np.abs(corr - corr_true) < 4 / np.sqrt(n_eff))
 
 
+def test_differential_evolution_moves_sample_the_same_posterior(linear_data, tmp_path):
+    path, y = linear_data
+    res = fit(_config(path, max_steps=2000, check_every=500, moves="differential-evolution"),
+              out_dir=tmp_path / "run", model_factory=LinearModelFactory(N_COEF))
+    # same analytic reference as above: Bishop (2006) PRML eqs. 3.53–3.54
+    phi = np.vander(X - 1.0, N_COEF, increasing=True)
+    s_n = np.linalg.inv(ALPHA * np.eye(N_COEF) + phi.T @ phi / SIGMA ** 2)
+    m_n = s_n @ phi.T @ y / SIGMA ** 2
+    samples = np.column_stack([res.samples[f"coef_{k}"] for k in range(N_COEF)])
+    n_used = (res.n_steps - res.burn_in) * res.n_walkers
+    mc_err = np.sqrt(np.diag(s_n) * np.max(res.tau) / n_used)
+    assert np.all(np.abs(samples.mean(axis=0) - m_n) < 4 * mc_err)
+    n_eff = n_used / np.max(res.tau)
+    np.testing.assert_allclose(samples.var(axis=0), np.diag(s_n), rtol=4 * np.sqrt(2 / n_eff))
+
+
 def test_same_seed_same_chain_and_other_seed_differs(linear_data, tmp_path):
     path, _ = linear_data
     runs = []

@@ -35,7 +35,7 @@ from ..config_keys import check_keys, expect_type, suggest
 from ..errors import ConfigError
 from .likelihood import NUISANCE_PREFIXES, nuisance_names
 from .priors import Gaussian, Prior, prior_from_mapping
-from .sampler import SamplerSettings
+from .sampler import MOVES, SamplerSettings
 
 TOP_KEYS = ("object", "model", "parameters", "datasets", "sampler", "simulate", "survey")
 DATASET_KEYS = ("name", "file", "covariance", "resolving_power", "kind", "scale", "inflate_errors",
@@ -45,7 +45,7 @@ SAMPLER_TYPES = {
     "tau_factor": (int, float), "tau_rtol": (int, float), "burn_in_tau": (int, float),
     "thin_tau": (int, float), "burn_in": int, "thin": int, "optimiser": str,
     "optimiser_max_evaluations": int, "optimiser_popsize": int, "ball_scale": (int, float),
-    "predictive_draws": int, "progress": bool,
+    "predictive_draws": int, "progress": bool, "moves": str,
 }
 OPTIMISERS = ("differential-evolution", "none")
 # Parameters that are temperatures somewhere in the atmosphere (checked against table coverage).
@@ -261,6 +261,9 @@ def _sampler(table: Mapping, where: str) -> SamplerSettings:
     if "optimiser" in values and values["optimiser"] not in OPTIMISERS:
         raise ConfigError(f"{where}: optimiser {values['optimiser']!r} unknown{suggest(values['optimiser'], OPTIMISERS)}"
                           f"; choose one of {', '.join(OPTIMISERS)}")
+    if "moves" in values and values["moves"] not in MOVES:
+        raise ConfigError(f"{where}: moves {values['moves']!r} unknown{suggest(values['moves'], MOVES)}; "
+                          f"choose one of {', '.join(MOVES)}")
     return SamplerSettings(**values)
 
 

@@ -65,6 +65,7 @@ class SamplerSettings:
     ball_scale: float = 1e-3
     predictive_draws: int = 200
     progress: bool = True
+    moves: str = "stretch"
 
     def n_walkers(self, ndim: int) -> int:
         """Walker count: ``walkers`` or, when 0, the smallest even number ≥ 2·ndim + 2."""
@@ -72,6 +73,21 @@ class SamplerSettings:
             return int(self.walkers)
         n = 2 * ndim + 2
         return n + (n % 2)
+
+
+#: ``[sampler] moves``: emcee proposal mixtures.  "stretch": the affine-invariant stretch move
+#: (Goodman & Weare 2010); "differential-evolution": 80 % DEMove (ter Braak 2006) + 20 % DESnookerMove
+#: (ter Braak & Vrugt 2008), the mixture suggested in the emcee documentation ("Using different moves").
+MOVES = ("stretch", "differential-evolution")
+
+
+def make_moves(name: str):
+    """The emcee ``moves`` argument for ``[sampler] moves``."""
+    if name == "stretch":
+        return None
+    if name == "differential-evolution":
+        return [(emcee.moves.DEMove(), 0.8), (emcee.moves.DESnookerMove(), 0.2)]
+    raise ValueError(f"unknown moves {name!r}")
 
 
 class SamplerInterrupted(UserError):
@@ -287,7 +303,8 @@ def run_sampler(posterior, settings: SamplerSettings, checkpoint_path, workers: 
             elapsed_before, n_done, converged = 0.0, 0, False
         resumed_from = n_done
         n_walkers, ndim = pos.shape
-        sampler = emcee.EnsembleSampler(n_walkers, ndim, posterior, pool=evaluator)
+        sampler = emcee.EnsembleSampler(n_walkers, ndim, posterior, pool=evaluator,
+                                        moves=make_moves(settings.moves))
         t_sampling = time.perf_counter()
         bar = _progress_bar(show, settings.max_steps, n_done)
         tau = history[-1][1:] if history else np.full(ndim, np.nan)
