@@ -208,10 +208,11 @@ def test_dit_many_lines_across_segments_match_direct_sum():
     # 1 % wherever σ exceeds 1e-3 of its maximum
     big = ref > 1e-3 * ref.max()
     np.testing.assert_allclose(sigma[big], ref[big], rtol=0.01)
-    # streamed in unsorted chunks: the same result (common practice, no source: linearity of the sum)
+    # streamed in unsorted chunks: the same result (common practice, no source: linearity of the sum;
+    # streamed planes are stored as float32, hence 1e-6)
     order = rng.permutation(n)
     chunks = [ll.select(order[i:i + 40]) for i in range(0, n, 40)]
     _, sigma_chunked = fine_cross_sections(lambda: iter(chunks), grid, t, p)
-    np.testing.assert_allclose(sigma_chunked, sigma, rtol=1e-9, atol=1e-12 * sigma.max())
+    np.testing.assert_allclose(sigma_chunked, sigma, rtol=1e-6, atol=1e-9 * sigma.max())
     _, sigma_list = fine_cross_sections(chunks, grid, t, p)  # in-memory chunks, segment by segment
     np.testing.assert_allclose(sigma_list, sigma, rtol=1e-9, atol=1e-12 * sigma.max())
