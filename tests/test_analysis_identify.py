@@ -130,10 +130,16 @@ source = "test band of the toy model"
     # a second call reuses the finished reduced fits (same configuration digest); with the dynesty
     # cross-check (Speagle 2020, MNRAS 493, 3132) both estimates of ln B agree within their errors
     pytest.importorskip("dynesty")
-    again = identify(tmp_path / "run", workers=1, model_factory=factory, band_draws=20, seed=1,
+    chain_y = tmp_path / "run" / "identify" / "without_Y" / "chain.h5"
+    stamp = chain_y.stat().st_mtime_ns
+    again = identify(tmp_path / "run", workers=1, model_factory=factory, band_draws=20, seed=1, proposal="mixture",
                      molecules=["Y"], nested_live_points=40)
     y_again = again.detections[0]
-    assert y_again["ln_z_reduced"] == pytest.approx(float(res.detections["ln_z_reduced"][1]))
+    assert chain_y.stat().st_mtime_ns == stamp                     # reused, not refitted
+    # the mixture proposal gives the same evidence within the quoted errors
+    first = res.detections[res.detections["molecule"] == "Y"][0]
+    assert abs(y_again["ln_z_reduced"] - first["ln_z_reduced"]) < 4 * math.hypot(y_again["ln_z_reduced_err"],
+                                                                                first["ln_z_reduced_err"])
     tol = 3 * math.hypot(y_again["ln_bayes_factor_err"], y_again["ln_bayes_factor_nested_err"])
     assert abs(y_again["ln_bayes_factor"] - y_again["ln_bayes_factor_nested"]) < tol
 

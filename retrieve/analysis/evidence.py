@@ -9,7 +9,8 @@ samples, following Gronau et al. (2017, J. Math. Psych. 81, 80):
    proposal fits posteriors that pile up against a prior edge;
 2. the samples are split at random into two halves; the first half fixes
    the proposal g (multivariate normal, or Student t for heavier tails,
-   with the sample mean and covariance);
+   with the sample mean and covariance; or a Gaussian mixture fitted by EM
+   for multimodal posteriors);
 3. N₂ draws from g are evaluated with q; with the second half's N₁ posterior
    samples, the iterative scheme of Meng & Wong (1996, Stat. Sin. 6, 831,
    eq. 4.1) with the optimal bridge function gives
@@ -42,7 +43,7 @@ from scipy import linalg, special
 
 from ..errors import ModelEvaluationError, UserError
 
-PROPOSALS = ("normal", "t")
+PROPOSALS = ("normal", "t", "mixture")
 _LOG_FLOOR = -1e300
 
 
@@ -123,8 +124,8 @@ class _Proposal:
     """Multivariate normal or Student-t proposal with given mean and covariance."""
 
     def __init__(self, mean, cov, kind: str = "normal", df: float = 5.0):
-        if kind not in PROPOSALS:
-            raise ValueError(f"proposal must be one of {PROPOSALS}, got {kind!r}")
+        if kind not in ("normal", "t"):
+            raise ValueError(f"proposal must be 'normal' or 't', got {kind!r}")
         self.kind, self.df = kind, float(df)
         self.mean = np.asarray(mean, dtype=float)
         self.ndim = self.mean.size
@@ -151,6 +152,60 @@ class _Proposal:
         return (special.gammaln(0.5 * (nu + d)) - special.gammaln(0.5 * nu)
                 - 0.5 * d * math.log(nu * math.pi) - 0.5 * self.log_det
                 - 0.5 * (nu + d) * np.log1p(m / nu))
+
+
+class _Mixture:
+    """Gaussian-mixture proposal fitted by expectation-maximisation (Bishop 2006, PRML, Sect. 9.2.2).
+
+    Initialised by k-means++ seeding (Arthur & Vassilvitskii 2007) with the given generator; every
+    component covariance gets a small ridge so that it stays positive definite.
+    """
+
+    def __init__(self, y: np.ndarray, n_components: int, rng: np.random.Generator, n_iter: int = 200,
+                 tol: float = 1e-8):
+        n, d = y.shape
+        k = max(1, min(int(n_components), n // (5 * (d + 1))))
+        ridge = 1e-6 * np.diag(np.atleast_2d(np.cov(y.T))).mean() * np.eye(d)
+        centres = [y[rng.integers(n)]]
+        for _ in range(1, k):
+            d2 = np.min([np.sum((y - c) ** 2, axis=1) for c in centres], axis=0)
+            centres.append(y[rng.choice(n, p=d2 / d2.sum())] if d2.sum() > 0 else y[rng.integers(n)])
+        resp = np.eye(k)[np.argmin([np.sum((y - c) ** 2, axis=1) for c in centres], axis=0)]
+        prev = -np.inf
+        for _ in range(n_iter):
+            self._m_step(y, resp, ridge)
+            log_p = self._component_log_pdf(y)
+            total = special.logsumexp(log_p, axis=1)
+            resp = np.exp(log_p - total[:, None])
+            ll = float(total.mean())
+            if ll - prev < tol:
+                break
+            prev = ll
+        self._m_step(y, resp, ridge)
+        self.ndim = d
+
+    def _m_step(self, y, resp, ridge):
+        nk = resp.sum(axis=0) + 1e-12
+        keep = nk > 1e-6 * y.shape[0]
+        resp, nk = resp[:, keep], nk[keep]
+        self.weights = nk / nk.sum()
+        self.means = (resp.T @ y) / nk[:, None]
+        self.parts = []
+        for j in range(nk.size):
+            z = y - self.means[j]
+            cov = (resp[:, j, None] * z).T @ z / nk[j] + ridge
+            self.parts.append(_Proposal(self.means[j], cov, "normal"))
+
+    def _component_log_pdf(self, y):
+        return np.column_stack([np.log(w) + g.log_pdf(y) for w, g in zip(self.weights, self.parts)])
+
+    def log_pdf(self, y: np.ndarray) -> np.ndarray:
+        return special.logsumexp(self._component_log_pdf(np.atleast_2d(y)), axis=1)
+
+    def sample(self, rng: np.random.Generator, n: int) -> np.ndarray:
+        counts = rng.multinomial(n, self.weights)
+        out = np.concatenate([g.sample(rng, c) for g, c in zip(self.parts, counts) if c])
+        return out[rng.permutation(n)]
 
 
 # --------------------------------------------------------------------------- helpers
@@ -206,7 +261,8 @@ class _SafeTarget:
 
 # --------------------------------------------------------------------------- bridge sampling
 def bridge_sampling(log_target: Callable, samples, log_target_values=None, bounds=None,
-                    proposal: str = "normal", df: float = 5.0, n_proposal: int | None = None,
+                    proposal: str = "normal", df: float = 5.0, n_components: int = 3,
+                    n_proposal: int | None = None,
                     rng: np.random.Generator | None = None, seed: int | None = None,
                     tol: float = 1e-10, max_iter: int = 1000, map_fn=map, n_chains: int = 1) -> EvidenceResult:
     """ln Z from posterior samples by bridge sampling (module docstring has the method).
@@ -223,9 +279,13 @@ def bridge_sampling(log_target: Callable, samples, log_target_values=None, bound
         ``log_target`` at ``samples`` if already known (saves n evaluations).
     bounds : sequence of (lo, hi), optional
         Support of each parameter (±inf for an open side); default unbounded.
-    proposal : {"normal", "t"}
+    proposal : {"normal", "t", "mixture"}
+        Multivariate normal, Student t, or a Gaussian mixture fitted by EM
+        (for multimodal or curved posteriors).
     df : float
         Degrees of freedom of the t proposal (> 2).
+    n_components : int
+        Components of the mixture proposal (fewer if the fitting half is small).
     n_proposal : int, optional
         Draws from the proposal (default: as many as posterior samples in the second half).
     rng, seed
@@ -246,6 +306,8 @@ def bridge_sampling(log_target: Callable, samples, log_target_values=None, bound
     -------
     EvidenceResult
     """
+    if proposal not in PROPOSALS:
+        raise ValueError(f"proposal must be one of {PROPOSALS}, got {proposal!r}")
     x = np.atleast_2d(np.asarray(samples, dtype=float))
     if x.ndim != 2 or x.shape[0] < 8:
         raise UserError(f"bridge sampling needs at least 8 posterior samples, got {x.shape[0]}")
@@ -265,7 +327,10 @@ def bridge_sampling(log_target: Callable, samples, log_target_values=None, bound
     fit_idx, iter_idx, shape = _split(n, int(n_chains), rng)
     if np.linalg.matrix_rank(np.cov(y[fit_idx].T).reshape(d, d)) < d:
         raise UserError("bridge sampling: the posterior samples are degenerate (a parameter does not vary)")
-    g = _Proposal(y[fit_idx].mean(axis=0), np.cov(y[fit_idx].T).reshape(d, d), proposal, df)
+    if proposal == "mixture":
+        g = _Mixture(y[fit_idx], n_components, rng)
+    else:
+        g = _Proposal(y[fit_idx].mean(axis=0), np.cov(y[fit_idx].T).reshape(d, d), proposal, df)
     n1 = iter_idx.size
     n2 = int(n_proposal) if n_proposal else n1
     y_prop = g.sample(rng, n2)
@@ -282,6 +347,8 @@ def bridge_sampling(log_target: Callable, samples, log_target_values=None, bound
             "proposal_outside_support": int(np.sum(~np.isfinite(l2)))}
     if proposal == "t":
         info["df"] = df
+    if proposal == "mixture":
+        info["n_components"] = len(g.parts)
     return EvidenceResult(ln_z=ln_z, ln_z_err=math.sqrt(re2), method="bridge sampling", n_posterior=n1,
                           n_proposal=n2, n_iterations=n_iter, converged=converged, info=info)
 

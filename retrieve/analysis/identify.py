@@ -84,11 +84,11 @@ def _n_walkers(run) -> int:
     return int(run.manifest.get("convergence", {}).get("n_walkers", 1) or 1)
 
 
-def _evidence(run, n_proposal, seed):
+def _evidence(run, n_proposal, seed, proposal="normal"):
     s = run.samples
     log_prob = s["log_prob"] if "log_prob" in s.colnames else None
     return evidence_of_run(run.log_posterior, s, log_prob=log_prob, n_proposal=n_proposal, seed=seed,
-                           n_chains=_n_walkers(run))
+                           n_chains=_n_walkers(run), proposal=proposal)
 
 
 @dataclasses.dataclass
@@ -104,6 +104,7 @@ class _ReducedTask:
     model_factory: object = None
     refit: bool = False
     nlive: int = 0
+    proposal: str = "normal"
 
     def __call__(self) -> dict:
         from ..inference.rundir import MANIFEST, load_run, read_json
@@ -117,7 +118,7 @@ class _ReducedTask:
             fit(self.config, out_dir=self.out_dir, workers=1, max_steps=self.max_steps, overwrite=True,
                 model_factory=self.model_factory, progress=False)
         run = load_run(self.out_dir, model_factory=self.model_factory)
-        ev = _evidence(run, self.n_proposal, self.seed)
+        ev = _evidence(run, self.n_proposal, self.seed, self.proposal)
         conv = run.manifest.get("convergence", {})
         out = {"molecule": self.molecule, "ln_z": ev.ln_z, "ln_z_err": ev.ln_z_err,
                "converged": bool(conv.get("converged", False)), "reused": reuse}
@@ -177,7 +178,7 @@ def bands_table(flags, meta: dict) -> Table:
 
 def identify(run_dir, workers: int = 1, max_steps: int | None = None, molecules=None, band_catalogue=None,
              n_proposal: int | None = None, band_draws: int = 60, seed: int = 0, model_factory=None,
-             refit: bool = False, nested_live_points: int = 0) -> IdentifyResult:
+             refit: bool = False, nested_live_points: int = 0, proposal: str = "normal") -> IdentifyResult:
     """Detection significance, abundance class and band flags of each molecule of a run.
 
     Parameters
@@ -206,6 +207,8 @@ def identify(run_dir, workers: int = 1, max_steps: int | None = None, molecules=
     nested_live_points : int
         If > 0, also estimate both evidences by nested sampling with dynesty
         (this many live points) as a cross-check: columns ``ln_bayes_factor_nested(_err)``.
+    proposal : {"normal", "t", "mixture"}
+        Bridge-sampling proposal (see :func:`retrieve.analysis.evidence.bridge_sampling`).
 
     Returns
     -------
@@ -214,6 +217,9 @@ def identify(run_dir, workers: int = 1, max_steps: int | None = None, molecules=
     from ..inference.rundir import load_run, write_table
     if int(workers) < 1:
         raise UserError(f"--workers must be >= 1, got {workers}")
+    from .evidence import PROPOSALS
+    if proposal not in PROPOSALS:
+        raise UserError(f"--proposal must be one of {', '.join(PROPOSALS)}, got {proposal!r}")
     run = load_run(run_dir, model_factory=model_factory)
     run_dir = Path(run_dir)
     available = free_molecules(run)
@@ -231,16 +237,16 @@ def identify(run_dir, workers: int = 1, max_steps: int | None = None, molecules=
     if max_steps is None:
         max_steps = int(run.manifest.get("convergence", {}).get("n_steps") or run.config.sampler.max_steps)
     tasks = [_ReducedTask(reduced_config(run.config, m), run_dir / IDENTIFY_DIR / f"without_{m}", m,
-                          max_steps, n_proposal, seed, model_factory, refit, int(nested_live_points))
+                          max_steps, n_proposal, seed, model_factory, refit, int(nested_live_points), proposal)
              for m in available]
     reduced = _run_reduced(tasks, int(workers))
-    full = _evidence(run, n_proposal, seed)
+    full = _evidence(run, n_proposal, seed, proposal)
     full_nested = (nested_evidence_of_run(run.log_posterior, nlive=int(nested_live_points), seed=seed)
                    if nested_live_points else None)
     rows = [_detection_row(run, m, full, reduced[m], full_nested) for m in available]
     flags = band_flags_of_run(run.log_posterior, run.samples, available, catalogue, n_draws=band_draws, seed=seed)
     meta = {"caveat": CAVEAT, "evidence_method": "bridge sampling (Meng & Wong 1996; Gronau et al. 2017), "
-                                                 "normal proposal on logit/log-transformed parameters",
+                                                 f"{proposal} proposal on logit/log-transformed parameters",
             "reduced_model": f"log_vmr_<molecule> fixed at {NEGLIGIBLE_LOG_VMR}, all else as in the fit",
             "nested_cross_check": (f"dynesty, {int(nested_live_points)} live points" if nested_live_points
                                    else "not run"),

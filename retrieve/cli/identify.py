@@ -23,6 +23,9 @@ def register(subparsers) -> None:
     p.add_argument("--band-draws", type=int, default=60, metavar="N", help="posterior draws for band flags (60)")
     p.add_argument("--proposal-draws", type=int, metavar="N",
                    help="bridge-sampling proposal draws (default: as many as posterior samples used)")
+    p.add_argument("--proposal", choices=("normal", "t", "mixture"), default="normal",
+                   help="bridge-sampling proposal: multivariate normal (default), Student t, or a Gaussian "
+                        "mixture for multimodal posteriors")
     p.add_argument("--seed", type=int, default=0, metavar="S", help="seed of the evidence and band draws (0)")
     p.add_argument("--refit", action="store_true", help="redo reduced fits even if finished ones exist")
     p.add_argument("--nested", type=int, default=0, metavar="NLIVE",
@@ -43,7 +46,7 @@ def run(args: argparse.Namespace) -> int:
     res = identify(args.run_dir, workers=args.workers, max_steps=args.max_steps, molecules=molecules,
                    band_catalogue=args.band_catalogue, n_proposal=args.proposal_draws,
                    band_draws=args.band_draws, seed=args.seed, refit=args.refit,
-                   nested_live_points=args.nested)
+                   nested_live_points=args.nested, proposal=args.proposal)
     print(f"{'molecule':<9} {'ln B':>9} {'±':>6} {'sigma':>6}  {'abundance':<14} log VMR")
     for r in res.detections:
         if r["abundance_class"] == "upper limit":
