@@ -187,7 +187,11 @@ def test_cli_user_errors_exit_2(tmp_path, capsys):
     assert code == 2 and "--temperatures" in err and err.count("\n") == 1
     code, _, err = _run(["opacity", "build", "--hitran", str(tmp_path / "none.par"), "--partition",
                          str(tmp_path / "none.pf"), "--no-progress"], capsys)
-    assert code == 2 and "not found" in err
+    assert code == 2 and "none.par: input file not found" in err
+    (tmp_path / "lines.par").write_text("x" * 160 + "\n")
+    code, _, err = _run(["opacity", "build", "--hitran", str(tmp_path / "lines.par"), "--partition",
+                         str(tmp_path / "none.pf"), "--no-progress"], capsys)
+    assert code == 2 and "none.pf: input file not found" in err
 
 
 def test_random_overlap_negligible_gas_shortcut(monkeypatch):

@@ -5,7 +5,7 @@ import argparse
 import json
 from pathlib import Path
 
-from ..errors import OpacityTableError, UserError
+from ..errors import InputFileError, OpacityTableError, UserError
 
 KIND_SUFFIX = {"cross_section": ".xsec.h5", "ktable": ".ktable.h5", "cia": ".cia.h5"}
 
@@ -118,10 +118,16 @@ def run_build(args: argparse.Namespace) -> int:
     if args.cia:
         from ..opacity_build.cia import cia_table
 
+        if not Path(args.cia).is_file():
+            raise InputFileError(f"{args.cia}: CIA file not found")
+
         table = cia_table(args.cia, grid, provenance=make_provenance([args.cia], grid.as_dict(), args.date))
         path = write_table(table, _out_path(args, table.species, "cia"))
         print(f"wrote {path}")
         return 0
+    for path in (args.hitran or []) + [args.exomol, args.partition]:
+        if path is not None and not Path(path).is_file():
+            raise InputFileError(f"{path}: input file not found")
     source, inputs, species, options = _line_source(args, species)
     from ..opacity_build.build import build_tables, default_workers
 
