@@ -55,3 +55,11 @@ def test_bands_user_errors(tmp_path, capsys):
     err = capsys.readouterr().err
     assert "--index" in err and len(err.strip().splitlines()) == 2
     assert main(["bands", str(flat), "--plot", str(tmp_path / "p.png"), "--x", "nope"]) == 2
+
+
+def test_list_bands_shows_sources(capsys):
+    assert main(["bands", "--list-bands"]) == 0
+    out = capsys.readouterr().out
+    for mol in ("H2O", "CH4", "CO", "CO2", "NH3", "K", "Na"):
+        assert f"\n{mol} " in out
+    assert "value from memory" in out and "HITRAN2020" in out

@@ -28,6 +28,8 @@ def register(subparsers) -> None:
     p.add_argument("--catalogue-bands", action="store_true",
                    help="add a depth for every catalogued band with continuum windows")
     p.add_argument("--band-catalogue", metavar="FILE", help="extra bands merged into the shipped catalogue")
+    p.add_argument("--list-bands", action="store_true",
+                   help="print the band catalogue (shipped + --band-catalogue) with sources and exit")
     p.add_argument("--draws", type=int, default=4000, metavar="N", help="noise realisations (4000)")
     p.add_argument("--model-draws", type=int, default=200, metavar="N", help="posterior draws with --run (200)")
     p.add_argument("--seed", type=int, default=0, metavar="S", help="seed (0)")
@@ -74,8 +76,20 @@ def _print(table) -> None:
         print(f"{r['name']:<{width}} {r['source']:<6} " + " ".join(cells))
 
 
+def _list_bands(path) -> int:
+    from ..analysis.band_catalogue import load_catalogue
+    print(f"{'molecule':<8} {'band':<8} {'centre':>7} {'window um':>13}  {'continuum um':<24} source")
+    for b in load_catalogue(path):
+        cont = ",".join(f"{lo:g}-{hi:g}" for lo, hi in b.continuum_um) or "-"
+        print(f"{b.molecule:<8} {b.band:<8} {b.center_um:>7.3f} {b.window_lo_um:>6.3f}-{b.window_hi_um:<6.3f}  "
+              f"{cont:<24} {b.source}")
+    return 0
+
+
 def run(args: argparse.Namespace) -> int:
     from ..analysis.indices import index_table
+    if args.list_bands:
+        return _list_bands(args.band_catalogue)
     from ..observations.readers import read_dataset
     from ..observations.writers import atomic_write_text
     if not args.spectra and not args.run:
