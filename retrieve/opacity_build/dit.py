@@ -11,11 +11,16 @@ grid points and width pairs, not with the number of lines.
 
 To keep few Doppler widths per plane (α_D ∝ ν), the grid is processed in
 segments of ``BuildGrid.segment_points`` points, each padded by the cut-off
-on both sides.  Width grids are global (w_k = exp(k h), h =
-``BuildGrid.width_step``) so the Fourier transforms of the kernels are reused
-across segments and (T, P) points.  The Doppler grid is finer
-(``BuildGrid.doppler_step``) than the Lorentz grid because blending two
-Gaussians of different width errs most in their steep tails.
+on both sides.  Width grids are global (w_k = exp(k h), with h =
+``BuildGrid.doppler_step`` or ``BuildGrid.width_step``) so the Fourier
+transforms of the kernels are reused across segments (LRU cache).  The
+Doppler grid is finer than the Lorentz grid because blending two Gaussians
+of different width errs most in their steep tails.  Kernels are evaluated
+with :func:`.profiles.voigt_fast` (exact core, asymptotic wings).
+
+Lines held in memory are binned and convolved segment by segment (nothing
+but σ is kept); chunks streamed from a file are binned for the whole
+spectrum first (float32 planes) and convolved in :meth:`FineGridAccumulator.finish`.
 
 Normalisation: each sampled kernel is scaled so that Σ K Δν equals the area of
 the truncated profile, (2/π) arctan(c/γ_L); an unresolved (narrow) profile
