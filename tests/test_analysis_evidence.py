@@ -94,6 +94,15 @@ def test_posterior_truncated_at_prior_edge():
     res = bridge_sampling(f, np.column_stack([a_s, b_s]), bounds=[(0.0, 1.0), (-np.inf, np.inf)], seed=4)
     assert abs(res.ln_z - (lz1 + lz2)) < 0.1
     assert abs(res.ln_z - (lz1 + lz2)) < 4 * res.ln_z_err + 1e-3
+    # a few samples exactly on the bound (a stuck walker) do not break the estimate; outside ones are refused
+    stuck = np.column_stack([a_s, b_s])
+    stuck[:3, 0] = 0.0
+    again = bridge_sampling(f, stuck, bounds=[(0.0, 1.0), (-np.inf, np.inf)], seed=4)
+    assert abs(again.ln_z - (lz1 + lz2)) < 4 * again.ln_z_err + 1e-3
+    stuck[0, 0] = -0.1
+    from retrieve.errors import UserError
+    with pytest.raises(UserError, match="outside the prior bounds"):
+        bridge_sampling(f, stuck, bounds=[(0.0, 1.0), (-np.inf, np.inf)], seed=4)
 
 
 def test_evidence_of_run_with_inference_log_posterior():

@@ -94,6 +94,12 @@ class _Unbounded:
         self.upper = ~np.isfinite(self.lo) & np.isfinite(self.hi)
         self.width = np.where(self.both, self.hi - self.lo, 1.0)
 
+    def nudge_inside(self, x: np.ndarray, eps: float = 1e-9) -> np.ndarray:
+        """Samples exactly on a finite bound moved inwards by ``eps`` of the range (or of 1 for one bound)."""
+        step = eps * np.where(self.both, self.width, 1.0)
+        x = np.where(np.isfinite(self.lo) & (x <= self.lo), self.lo + step, x)
+        return np.where(np.isfinite(self.hi) & (x >= self.hi), self.hi - step, x)
+
     def to_unbounded(self, x: np.ndarray) -> np.ndarray:
         x = np.asarray(x, dtype=float)
         y = x.copy()
@@ -314,9 +320,13 @@ def bridge_sampling(log_target: Callable, samples, log_target_values=None, bound
     n, d = x.shape
     rng = rng if rng is not None else np.random.default_rng(0 if seed is None else seed)
     tr = _Unbounded(bounds, d)
+    outside = ((x < tr.lo) | (x > tr.hi)).any(axis=1)
+    if np.any(outside):
+        raise UserError(f"bridge sampling: {int(outside.sum())} posterior samples lie outside the prior bounds")
+    # a walker that never left its (clipped) starting point can sit exactly on a bound, where the
+    # logit is infinite: move such samples inside by 1e-9 of the range (the density is unchanged)
+    x = tr.nudge_inside(x)
     y = tr.to_unbounded(x)
-    if not np.all(np.isfinite(y)):
-        raise UserError("bridge sampling: posterior samples lie on or outside the given bounds")
     if log_target_values is None:
         q = _evaluate(log_target, x, map_fn)
     else:
