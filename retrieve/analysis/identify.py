@@ -240,6 +240,9 @@ def identify(run_dir, workers: int = 1, max_steps: int | None = None, molecules=
                           max_steps, n_proposal, seed, model_factory, refit, int(nested_live_points), proposal)
              for m in available]
     reduced = _run_reduced(tasks, int(workers))
+    for m in available:
+        if reduced[m]["reused"]:
+            log.info("%s: reusing the finished reduced fit in %s", m, run_dir / IDENTIFY_DIR / f"without_{m}")
     full = _evidence(run, n_proposal, seed, proposal)
     full_nested = (nested_evidence_of_run(run.log_posterior, nlive=int(nested_live_points), seed=seed)
                    if nested_live_points else None)
@@ -252,6 +255,7 @@ def identify(run_dir, workers: int = 1, max_steps: int | None = None, molecules=
                                    else "not run"),
             "abundance_rule": CLASS_RULE, "seed": int(seed),
             "reduced_runs": {m: str(t.out_dir.relative_to(run_dir)) for m, t in zip(available, tasks)},
+            "reduced_reused": {m: bool(reduced[m]["reused"]) for m in available},
             "skipped": skipped}
     det = detections_table(rows, meta)
     band_meta = {"rule": "significance_sigma: median over posterior draws of chi2 = d^T C_B^-1 d (d = full minus "
