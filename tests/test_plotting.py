@@ -242,3 +242,21 @@ def test_photometry_envelope_may_exclude_the_best_fit(rng):
     seg = np.asarray(bars[1].get_segments()[0])
     factor, _ = style.flux_scale(np.concatenate([d.flux for d in datasets]))
     np.testing.assert_allclose(seg[:, 1] * factor, [best["phot"][0] * 1.1, best["phot"][0] * 1.2])
+
+
+def test_derived_truths_mass_matches_astropy():
+    import astropy.constants as const
+    import astropy.units as u
+
+    from retrieve.plotting.run_figures import derived_truths
+
+    truths = {"log_g": 4.4, "radius_rjup": 1.05, "log_vmr_H2O": -3.3, "log_vmr_CH4": -3.5, "log_vmr_CO": -5.0}
+    out = derived_truths(truths)
+    # M = g R^2 / G with astropy constants (IAU 2015 nominal R_Jup, M_Jup)
+    g = 10 ** 4.4 * u.cm / u.s ** 2
+    mass = (g * (1.05 * u.R_jup) ** 2 / const.G).to(u.M_jup).value
+    assert out["mass_mjup"] == pytest.approx(mass, rel=1e-9)
+    # C/O of H2O, CH4 and CO: (CO + CH4) / (H2O + CO) (atom counting, common practice, no source)
+    co = (10 ** -5.0 + 10 ** -3.5) / (10 ** -3.3 + 10 ** -5.0)
+    assert out["c_to_o"] == pytest.approx(co, rel=1e-9)
+    assert {k: out[k] for k in truths} == truths

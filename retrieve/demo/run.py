@@ -99,9 +99,9 @@ def _identify(run_dir: Path, quick: bool, workers: int, settings):
     except ImportError:
         return False, "identification step skipped: retrieve.analysis.identify is not available in this version"
     if quick:
-        identify(run_dir, workers=workers, molecules=list(QUICK_IDENTIFY), max_steps=settings.max_steps // 2)
+        identify(run_dir, workers=workers, molecules=list(QUICK_IDENTIFY), max_steps=settings.max_steps // 4)
         return True, (f"--quick: identification tested {', '.join(QUICK_IDENTIFY)} only, with reduced fits of "
-                      f"at most {settings.max_steps // 2} steps")
+                      f"at most {settings.max_steps // 4} steps")
     identify(run_dir, workers=workers)
     return True, ""
 

@@ -77,7 +77,19 @@ def corner_figure(run, subset=None, include_nuisance: bool = False):
                   and np.all(np.isfinite(np.asarray(samples[n], float)))]
     else:
         names = list(subset)
-    return plot_corner(samples, names=names, truths=simulation_truths(run.object_data))
+    return plot_corner(samples, names=names, truths=derived_truths(simulation_truths(run.object_data)))
+
+
+def derived_truths(truths: dict) -> dict:
+    """Truths plus the derived quantities (mass, C/O, ...) computed from them, when possible."""
+    if not truths:
+        return truths
+    try:
+        from ..analysis.derived import derived_from_parameters
+        extra = derived_from_parameters({k: np.array([v]) for k, v in truths.items()})
+    except (ImportError, KeyError, ValueError):
+        return truths
+    return {**{k: float(np.ravel(v)[0]) for k, v in extra.items()}, **truths}
 
 
 def _highres(run, datasets):

@@ -174,7 +174,7 @@ def plot_spectrum(datasets: Sequence, best_fit: Mapping[str, np.ndarray],
             w, f = (np.asarray(a, dtype=float) for a in highres)
             lo, hi = _data_extent(datasets)
             sel = (w >= lo) & (w <= hi)
-            ax.plot(w[sel], f[sel] / factor, color=style.RUST, lw=0.6, alpha=0.45, zorder=1,
+            ax.plot(w[sel], f[sel] / factor, color=style.RUST, lw=0.4, alpha=0.3, zorder=0.5,
                     label="best fit (model grid)")
         for i, d in enumerate(datasets):
             _draw_dataset(ax, axr, d, np.asarray(best_fit[d.name], dtype=float), envelopes.get(d.name),

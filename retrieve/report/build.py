@@ -99,7 +99,7 @@ def _display_table(table: Table) -> Table:
 
 def report_content(run, figures=run_figures.FIGURES) -> ReportContent:
     """Everything the report of ``run`` shows (figures rendered to PNG)."""
-    truths = run_figures.simulation_truths(run.object_data)
+    truths = run_figures.derived_truths(run_figures.simulation_truths(run.object_data))
     notes = []
     conv = run.manifest.get("convergence", {})
     if not conv.get("converged", False):
