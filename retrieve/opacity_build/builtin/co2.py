@@ -12,7 +12,11 @@ Method
   296 K band strengths (table :data:`COLD_BANDS`).  All are parallel
   (Δℓ = 0).  Fermi polyad members keep their observed origins and strengths.
 * Hot bands: the same vibrational change applied to every lower state with
-  G < :data:`HOT_LOWER_MAX_CM`; the origin is the cold origin plus the
+  G < :data:`HOT_LOWER_MAX_CM` (5000 cm⁻¹; 9000 cm⁻¹ for ν3 and 7000 cm⁻¹
+  for the 2.7 µm dyad, :data:`HOT_LOWER_MAX_BY_BAND`), J'' ≤ 160; the
+  lower levels kept hold 91 % (5000 cm⁻¹) to 99 % (9000 cm⁻¹) of the
+  molecules at 1500 K and 46–80 % at 3000 K, so the weak overtone bands are
+  too weak by up to 2× at the hot end of the grid.  The origin is the cold origin plus the
   anharmonic-expansion difference, the squared transition moment is the
   cold one times the harmonic-oscillator factor Π_i C(v_i + Δv_i, Δv_i)
   (for the bend at fixed ℓ: ((v2+2)² - ℓ²)/4 per two quanta).  A documented
@@ -79,7 +83,10 @@ COLD_BANDS = (
 )
 
 HOT_LOWER_MAX_CM = 5000.0
-J_MAX = 120
+#: Wider hot-band lower-level ranges for the strong bands: levels below 9000 (7000) cm^-1 hold 80 %
+#: (62 %) of the molecules at 3000 K, those below 5000 cm^-1 only 46 %.
+HOT_LOWER_MAX_BY_BAND = {"00011": 9000.0, "10011": 7000.0, "10012": 7000.0}
+J_MAX = 160
 
 
 def vib_energy(v1, v2, l, v3):
@@ -201,9 +208,10 @@ def line_arrays(j_max: int = J_MAX, hot_lower_max: float = HOT_LOWER_MAX_CM) -> 
     st = vibrational_states()
     q296 = partition_function(T_REF)
     g0 = float(vib_energy(0, 0, 0, 0))
+    # "band" = 100000 * cold-band index + lower-level index (0 = ground: the cold band itself)
     out = {k: [] for k in ("wavenumber_cm", "e_lower_cm", "strength_296", "band")}
-    low = np.nonzero(st["energy"] < hot_lower_max)[0]
     for ib, (label, delta, nu_cold, s_band) in enumerate(COLD_BANDS):
+        low = np.nonzero(st["energy"] < max(hot_lower_max, HOT_LOWER_MAX_BY_BAND.get(label, 0.0)))[0]
         # |R|^2 of the cold band from its catalogued strength
         nu, e_lo, hl, _ = _band_lines(0, 0, B000, float(rot_constant(*(delta[0], delta[1], delta[2]))), 0.0,
                                       nu_cold, j_max)
@@ -221,23 +229,30 @@ def line_arrays(j_max: int = J_MAX, hot_lower_max: float = HOT_LOWER_MAX_CM) -> 
             out["wavenumber_cm"].append(nu)
             out["e_lower_cm"].append(e_lo)
             out["strength_296"].append(s)
-            out["band"].append(np.full(nu.size, ib * 10000 + k))
+            out["band"].append(np.full(nu.size, ib * 100000 + k))
     del g0
     res = {k: np.concatenate(v) for k, v in out.items()}
     order = np.lexsort((res["e_lower_cm"], res["wavenumber_cm"]))
     return {k: v[order] for k, v in res.items()}
 
 
-def line_list(j_max: int = J_MAX, hot_lower_max: float = HOT_LOWER_MAX_CM, min_strength_296: float = 1e-32):
+def line_list(j_max: int = J_MAX, hot_lower_max: float = HOT_LOWER_MAX_CM, min_strength: float = 1e-30):
     """CO2 lines as one :class:`~retrieve.opacity_build.linelist.LineList` (HITRAN-form strengths).
 
-    Lines weaker than ``min_strength_296`` at 296 K *and* from lower levels
-    below 2000 cm⁻¹ are dropped (they stay negligible at every temperature).
+    Lines whose strength stays below ``min_strength`` (cm molecule⁻¹) at 296,
+    1000 and 3000 K are dropped: spread over an R = 1000 bin they add < 1e-30
+    cm² to the cross section.
     """
     from ..linelist import LineList
 
     d = line_arrays(j_max, hot_lower_max)
-    keep = (d["strength_296"] > min_strength_296) | (d["e_lower_cm"] > 2000.0)
+    q296 = partition_function(T_REF)
+    s_max = d["strength_296"].copy()
+    for t in (1000.0, 3000.0):
+        scale = (q296 / partition_function(t)) * np.exp(-C2_CM_K * d["e_lower_cm"] * (1.0 / t - 1.0 / T_REF))
+        stim = -np.expm1(-C2_CM_K * d["wavenumber_cm"] / t) / -np.expm1(-C2_CM_K * d["wavenumber_cm"] / T_REF)
+        s_max = np.maximum(s_max, d["strength_296"] * scale * stim)
+    keep = s_max > min_strength
     n = int(keep.sum())
     return LineList(species="CO2", wavenumber_cm=d["wavenumber_cm"][keep], e_lower_cm=d["e_lower_cm"][keep],
                     mass_amu=MASS_AMU, partition=partition_function, strength_ref=d["strength_296"][keep],
