@@ -119,11 +119,12 @@ def compute_table(species: str, grid: BuildGrid | None = None, slice_spec: dict 
     spec = GENERATORS[species]
     mod = _module(spec["module"])
     edges, centres, temps, press = _select_grid(grid, slice_spec)
-    provenance = {"generator": mod.__name__, "method_and_sources": _sources(mod),
-                  "project_version": __version__, "date": BUILD_DATE,
-                  "grid": {"wavelength_range_um": list(grid.wavelength_range_um),
-                           "resolving_power": grid.resolving_power, "bin_average": True},
-                  "inputs": []}
+    # same keys as retrieve.opacity_build.provenance.make_provenance (no platform entry: the
+    # record must not depend on the machine), plus the generator and its statement of sources
+    provenance = {"software": "retrieve", "version": __version__, "date": BUILD_DATE, "inputs": [],
+                  "generator": mod.__name__, "method_and_sources": _sources(mod),
+                  "parameters": {"wavelength_range_um": list(grid.wavelength_range_um),
+                                 "resolving_power": grid.resolving_power, "bin_average": True}}
     if spec["kind"] == "cia":
         value = mod.cia_coefficient(species, centres, temps, edges_um=edges)
         return OpacityTable(kind="cia", species=species, wavelength_um=centres, temperature_K=temps,
@@ -132,7 +133,7 @@ def compute_table(species: str, grid: BuildGrid | None = None, slice_spec: dict 
         from .binning import bin_average_cross_section
         source = mod.line_list()
         chunks = [source] if hasattr(source, "wavenumber_cm") else list(source)
-        provenance["grid"].update(wing_cutoff_cm=grid.wing_cutoff_cm, profile="pseudo-Voigt CDF bin average",
+        provenance["parameters"].update(wing_cutoff_cm=grid.wing_cutoff_cm, profile="pseudo-Voigt CDF bin average",
                                   n_lines=int(sum(len(c) for c in chunks)))
         sigma = bin_average_cross_section(chunks, edges, temps, press, cutoff_cm=grid.wing_cutoff_cm)
     else:
