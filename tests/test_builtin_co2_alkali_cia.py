@@ -74,8 +74,8 @@ def test_co2_hot_band_fraction_grows_with_temperature():
 
 
 # NIST ASD vacuum wavelengths (µm), values from memory
-@pytest.mark.parametrize("element,wl_um", [("K", 0.766701), ("K", 0.770108), ("K", 1.16969), ("K", 1.25253),
-                                           ("Na", 0.58916), ("Na", 0.58976), ("Na", 1.14069)])
+@pytest.mark.parametrize("element,wl_um", [("K", 0.766701), ("K", 0.770108), ("K", 1.16934), ("K", 1.17761), ("K", 1.25256),
+                                           ("Na", 0.58916), ("Na", 0.58976), ("Na", 1.14069), ("Na", 0.81855)])
 def test_alkali_line_positions(element, wl_um):
     nu = np.array([x[1] for x in alkali.LINES[element]])
     assert np.min(np.abs(1e4 / nu - wl_um)) < 2e-4
@@ -171,3 +171,13 @@ def test_cia_hot_rototranslational_wing_reaches_5um():
     a2000 = cia_model.cia_wavenumber("H2-H2", np.array([2000.0]), 2000.0)[0]
     # high-J S0 lines (S0(7) at 1835 cm^-1, value from memory) make 5 µm CIA grow strongly with T
     assert a2000 > 100.0 * a300
+
+
+@pytest.mark.parametrize("element", ["K", "Na"])
+def test_alkali_lines_connect_the_partition_levels(element):
+    levels = np.array([e for e, _ in alkali.LEVELS[element]])
+    for label, nu, e_lo, g_lo, _, _ in alkali.LINES[element]:
+        # Ritz principle: every line joins two levels of the same NIST level list (common practice)
+        assert np.min(np.abs(levels - e_lo)) < 1e-6, label
+        assert np.min(np.abs(levels - (e_lo + nu))) < 0.01, label
+        assert dict(alkali.LEVELS[element])[e_lo] == g_lo, label
