@@ -42,7 +42,7 @@ TRUTH = {"log_g": 4.2, "radius_rjup": 1.15, "distance_pc": 30.0,
          "log_vmr_H2O": -3.3, "log_vmr_CH4": -4.5, "log_vmr_CO": -3.6}
 PRIORS = {
     "log_g": ("uniform", 3.0, 5.5), "radius_rjup": ("uniform", 0.6, 2.0),
-    **{f"t_knot_{i}": ("uniform", 300.0, 3900.0) for i in range(5)},
+    **{f"t_knot_{i}": ("uniform", 300.0, 3000.0) for i in range(5)},   # inside the bundled tables (300–3000 K)
     **{f"log_vmr_{s}": ("uniform", -9.0, -1.5) for s in ABSORBERS},
 }
 

@@ -61,6 +61,9 @@ def test_summary_matches_the_samples_and_truth_is_plausible(finished_run):
     for name in ("t_iso", "radius_rjup"):
         lo, hi = np.percentile(s[name], [0.05, 99.95])
         assert lo < TRUTH[name] < hi, name
+    # an isothermal atmosphere emits a blackbody at T_iso whatever its opacity (Kirchhoff; common practice,
+    # no source), so the T_eff derived from the model's integrated flux must equal t_iso
+    np.testing.assert_allclose(row["teff_k"]["map"], row["t_iso"]["map"], rtol=5e-3)
     # MAP entry is the parameter vector with the highest log posterior in the chain
     ck = read_checkpoint(out / "chain.h5")
     i = np.unravel_index(np.argmax(ck.log_prob), ck.log_prob.shape)

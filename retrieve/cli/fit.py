@@ -4,6 +4,7 @@ from __future__ import annotations
 import argparse
 import logging
 import sys
+import warnings
 
 from ..inference.run import fit
 
