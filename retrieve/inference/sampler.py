@@ -112,6 +112,8 @@ def _worker_evaluate(theta):
 class EvaluationMap:
     """Evaluate the posterior over many points, serially or on a pool, counting failures.
 
+    ``n_evaluations`` counts likelihood evaluations (points inside the prior support).
+
     Passed to emcee as its ``pool`` (emcee only calls ``.map``): the function
     emcee hands over is its wrapper of the same posterior, so we evaluate the
     posterior directly and keep the failure reasons, which emcee would drop.
@@ -136,10 +138,11 @@ class EvaluationMap:
             results = self._pool.map(_worker_evaluate, points)
         else:
             results = [self.posterior.evaluate(p) for p in points]
-        for _, reason in results:
+        for lp, reason in results:
             if reason:
                 self.failures[reason] += 1
-        self.n_evaluations += len(points)
+            # count likelihood (model) evaluations; points outside the prior cost nothing
+            self.n_evaluations += bool(reason) or lp != -math.inf
         return np.array([lp for lp, _ in results], dtype=float)
 
     def map(self, func, iterable):  # emcee's pool interface
