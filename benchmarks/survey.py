@@ -22,13 +22,23 @@ on it.  Printed:
   the cores were shared with other work.
 
 The machine's cores may be shared with other work; the numbers are only as
-good as the idle capacity while it runs.
+good as the idle capacity while it runs.  On Linux with scheduler autogroups
+(``/proc/sys/kernel/sched_autogroup_enabled`` = 1) every process of one
+session shares one CPU share, so on a busy machine the workers of a
+LocalCluster (all in the benchmark's session) cannot get more CPU than one
+process would.  ``--own-sessions`` starts the scheduler and each worker as
+separate ``dask scheduler`` / ``dask worker`` processes in sessions of their
+own (as on a real cluster, where workers are independent processes) and
+connects to them by address, the ``--scheduler`` path of ``retrieve batch``.
 """
 from __future__ import annotations
 
 import argparse
+import contextlib
+import json
 import os
 import statistics
+import subprocess
 import sys
 import tempfile
 import time
@@ -47,13 +57,53 @@ def _noop(x):
     return x
 
 
-def one_setting(demo, folder: Path, n_workers: int) -> dict:
+@contextlib.contextmanager
+def own_session_cluster(n_workers: int, folder: Path):
+    """Scheduler and workers as separate processes, each in a new session; yields the scheduler address."""
+    sched_file = folder / f"scheduler_{n_workers}.json"
+    sched_file.unlink(missing_ok=True)
+    py = sys.executable
+    procs = [subprocess.Popen([py, "-m", "distributed.cli.dask_scheduler", "--host", "127.0.0.1", "--port", "0",
+                               "--no-dashboard", "--scheduler-file", str(sched_file)], start_new_session=True,
+                              stdout=subprocess.DEVNULL, stderr=subprocess.DEVNULL)]
+    try:
+        t_end = time.monotonic() + 120
+        while not sched_file.is_file() and time.monotonic() < t_end:
+            time.sleep(0.1)
+        for _ in range(n_workers):
+            procs.append(subprocess.Popen([py, "-m", "distributed.cli.dask_worker", "--scheduler-file", str(sched_file),
+                                           "--nthreads", "1", "--nworkers", "1", "--host", "127.0.0.1",
+                                           "--no-dashboard"], start_new_session=True,
+                                          stdout=subprocess.DEVNULL, stderr=subprocess.DEVNULL))
+        yield json.loads(sched_file.read_text())["address"]
+    finally:
+        for proc in reversed(procs):   # only the processes started here, by pid
+            proc.terminate()
+        for proc in reversed(procs):
+            try:
+                proc.wait(timeout=30)
+            except subprocess.TimeoutExpired:
+                proc.kill()
+
+
+@contextlib.contextmanager
+def make_client(n_workers: int, folder: Path, own_sessions: bool):
     from distributed import Client, LocalCluster
+    if own_sessions:
+        with own_session_cluster(n_workers, folder) as address, Client(address, set_as_default=False) as client:
+            client.wait_for_workers(n_workers, timeout=120)
+            yield client
+    else:
+        with LocalCluster(n_workers=n_workers, threads_per_worker=1, host="127.0.0.1", dashboard_address=None,
+                          processes=True, silence_logs=40) as cluster, Client(cluster, set_as_default=False) as client:
+            yield client
+
+
+def one_setting(demo, folder: Path, n_workers: int, own_sessions: bool = False) -> dict:
     from retrieve.survey.batch import run_survey
 
     t0 = time.perf_counter()
-    with LocalCluster(n_workers=n_workers, threads_per_worker=1, host="127.0.0.1", dashboard_address=None,
-                      processes=True, silence_logs=40) as cluster, Client(cluster, set_as_default=False) as client:
+    with make_client(n_workers, folder, own_sessions) as client:
         client.run(_warm)
         t_ready = time.perf_counter() - t0
         latency = []
@@ -75,6 +125,8 @@ def main(argv=None) -> int:
     parser.add_argument("--objects", type=int, default=8, help="number of tiny fits (default 8)")
     parser.add_argument("--max-steps", type=int, default=200, help="chain length of each fit (default 200)")
     parser.add_argument("--folder", help="work folder (default: a temporary one)")
+    parser.add_argument("--own-sessions", action="store_true",
+                        help="scheduler and workers as separate processes in their own sessions (see docstring)")
     args = parser.parse_args(argv)
 
     from retrieve.survey.demo import make_demo_survey
@@ -83,7 +135,9 @@ def main(argv=None) -> int:
         folder = Path(args.folder or tmp)
         demo = make_demo_survey(folder / "demo", n_objects=args.objects, max_steps=args.max_steps,
                                 check_every=50, optimiser_evaluations=300)
-        rows = [one_setting(demo, folder, n) for n in (1, 2)]
+        rows = [one_setting(demo, folder, n, args.own_sessions) for n in (1, 2)]
+    print("cluster:", "dask scheduler + dask worker processes in own sessions" if args.own_sessions
+          else "LocalCluster in this session")
     for r in rows:
         print(f"{r['workers']} worker(s): start-up {r['startup_s']:.1f} s, dispatch wall {r['wall_s']:.2f} s, "
               f"summary {r['summary_s']:.2f} s, "
