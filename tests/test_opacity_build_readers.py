@@ -274,3 +274,19 @@ def test_hitran_ch4_nu3_band_totals(reference_dir):
     assert len(ll) == 6489
     assert ll.wavenumber_cm.min() == pytest.approx(2731, abs=1) and ll.wavenumber_cm.max() == pytest.approx(3254, abs=1)
     assert ll.strength_ref.sum() == pytest.approx(1.082e-17, rel=1e-3, abs=0.0)
+
+
+def test_exomol_split_bz2_trans_files_read_like_one(reference_dir, tmp_path):
+    _, _, _, abundance = _write_exomol_from_hitran(reference_dir, tmp_path)
+    whole = concatenate(read_exomol(tmp_path / "12C-16O__Test.def"))
+    rows = (tmp_path / "12C-16O__Test.trans").read_bytes().splitlines(keepends=True)
+    (tmp_path / "12C-16O__Test.trans").unlink()
+    half = len(rows) // 2
+    # ExoMol splits big lists by wavenumber range: <slug>__<dataset>__<from>-<to>.trans.bz2
+    (tmp_path / "12C-16O__Test__00000-02000.trans.bz2").write_bytes(bz2.compress(b"".join(rows[:half])))
+    (tmp_path / "12C-16O__Test__02000-15000.trans.bz2").write_bytes(bz2.compress(b"".join(rows[half:])))
+    split = concatenate(read_exomol(tmp_path / "12C-16O__Test.def", chunk_lines=100))
+    # common practice, no source: splitting and compressing the transitions changes nothing
+    np.testing.assert_array_equal(split.wavenumber_cm, whole.wavenumber_cm)
+    np.testing.assert_array_equal(split.einstein_a, whole.einstein_a)
+    np.testing.assert_array_equal(split.strength(1500.0), whole.strength(1500.0))
