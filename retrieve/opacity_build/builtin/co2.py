@@ -207,7 +207,6 @@ def line_arrays(j_max: int = J_MAX, hot_lower_max: float = HOT_LOWER_MAX_CM) -> 
     """All lines (cold and hot bands), abundance-weighted S(296), sorted by wavenumber."""
     st = vibrational_states()
     q296 = partition_function(T_REF)
-    g0 = float(vib_energy(0, 0, 0, 0))
     # "band" = 100000 * cold-band index + lower-level index (0 = ground: the cold band itself)
     out = {k: [] for k in ("wavenumber_cm", "e_lower_cm", "strength_296", "band")}
     for ib, (label, delta, nu_cold, s_band) in enumerate(COLD_BANDS):
@@ -230,7 +229,6 @@ def line_arrays(j_max: int = J_MAX, hot_lower_max: float = HOT_LOWER_MAX_CM) -> 
             out["e_lower_cm"].append(e_lo)
             out["strength_296"].append(s)
             out["band"].append(np.full(nu.size, ib * 100000 + k))
-    del g0
     res = {k: np.concatenate(v) for k, v in out.items()}
     order = np.lexsort((res["e_lower_cm"], res["wavenumber_cm"]))
     return {k: v[order] for k, v in res.items()}
