@@ -290,3 +290,15 @@ def test_exomol_split_bz2_trans_files_read_like_one(reference_dir, tmp_path):
     np.testing.assert_array_equal(split.wavenumber_cm, whole.wavenumber_cm)
     np.testing.assert_array_equal(split.einstein_a, whole.einstein_a)
     np.testing.assert_array_equal(split.strength(1500.0), whole.strength(1500.0))
+
+
+def test_hitran_extended_records_of_unequal_length(reference_dir, tmp_path):
+    src = reference_dir / "hitran" / "co_hitran2020_sample_h2he_broadening.par"
+    lines = src.read_bytes().splitlines()
+    ragged = tmp_path / "ragged.par"
+    ragged.write_bytes(b"\n".join(ln.rstrip() if i % 2 else ln for i, ln in enumerate(lines)) + b"\n")
+    ref = concatenate(read_hitran(src, partition=Q_FLAT))      # equal lengths: column-wise parsing
+    got = concatenate(read_hitran(ragged, partition=Q_FLAT))   # unequal: row-wise parsing
+    # common practice, no source: both parsers read the same numbers
+    for key in ("gamma_h2", "n_h2", "gamma_he", "n_he", "wavenumber_cm"):
+        np.testing.assert_array_equal(getattr(got, key), getattr(ref, key))

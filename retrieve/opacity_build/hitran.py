@@ -112,11 +112,39 @@ def parse_records(records: np.ndarray, fields=None) -> dict:
     return out
 
 
-def parse_broadening_tail(tails: list[bytes]) -> dict:
-    """γ/n for He and H2 from the comma-separated tails of extended records (blank -> NaN)."""
+_TAIL_FIELDS = {"gamma_he": 1, "n_he": 4, "gamma_h2": 7, "n_h2": 10}  # after the leading comma
+
+
+def _parse_tail_columns(tails: np.ndarray) -> dict | None:
+    """Vectorised tail parsing when every row has its commas in the same columns (else None)."""
+    commas = np.flatnonzero(tails[0] == ord(","))
+    if commas.size < 11 or not np.all(tails[:, commas] == ord(",")):
+        return None
+    bounds = list(commas) + [tails.shape[1]]
+    out = {}
+    for key, c in _TAIL_FIELDS.items():
+        a, b = bounds[c - 1] + 1, bounds[c]
+        text = np.ascontiguousarray(tails[:, a:b]).view(f"S{b - a}").ravel()
+        try:
+            out[key] = text.astype(np.float64)
+        except ValueError:  # blank or odd entries somewhere: let the row-wise parser handle them
+            return None
+    return out
+
+
+def parse_broadening_tail(tails) -> dict:
+    """γ/n for He and H2 from the comma-separated tails of extended records (blank -> NaN).
+
+    ``tails``: list of bytes, or an (n, width) uint8 array of equal-length tails.
+    """
+    if isinstance(tails, np.ndarray):
+        fast = _parse_tail_columns(tails)
+        if fast is not None:
+            return fast
+        tails = [bytes(row) for row in tails]
     n = len(tails)
-    out = {k: np.full(n, np.nan) for k in ("gamma_he", "n_he", "gamma_h2", "n_h2")}
-    cols = {"gamma_he": 1, "n_he": 4, "gamma_h2": 7, "n_h2": 10}
+    out = {k: np.full(n, np.nan) for k in _TAIL_FIELDS}
+    cols = _TAIL_FIELDS
     for i, tail in enumerate(tails):
         parts = tail.split(b",")
         for key, c in cols.items():
@@ -151,7 +179,7 @@ def iter_record_blocks(path: str | os.PathLike, chunk_lines: int = 1_000_000) ->
         if not first:
             return
         line_len = len(first)
-        if line_len in (RECORD_LENGTH + 1, RECORD_LENGTH + 2) and first.endswith(b"\n"):
+        if line_len > RECORD_LENGTH and first.endswith(b"\n"):
             limit = None if path.suffix == ".bz2" else path.stat().st_size
             yield from _fixed_blocks(fh, first, line_len, chunk_lines, limit, path)
             return
@@ -196,7 +224,9 @@ def _fixed_blocks(fh, first: bytes, line_len: int, chunk_lines: int, limit: int 
             return
         rows = buf[:filled - filled % line_len].reshape(-1, line_len)
         if filled % line_len == 0 and np.all(rows[:, -1] == ord("\n")):
-            yield rows[:, :RECORD_LENGTH], None
+            eol = 2 if rows[0, -2] == ord("\r") else 1
+            tails = rows[:, RECORD_LENGTH:line_len - eol] if line_len - eol > RECORD_LENGTH else None
+            yield rows[:, :RECORD_LENGTH], tails
             start = 0
         else:  # irregular lengths somewhere in this chunk: general path
             data = bytes(view[:filled])
@@ -264,7 +294,7 @@ def read_hitran(path: str | os.PathLike, species: str | None = None, isotopologu
     q_cache: dict = {}
     for records, tails in iter_record_blocks(path, chunk_lines):
         cols = parse_records(records, fields)
-        if tails is not None:
+        if tails is not None and (not isinstance(tails, np.ndarray) or tails.shape[1] > 0):
             cols.update(parse_broadening_tail(tails))
         if molecule is None:
             molecule = int(cols["molecule"][0])
