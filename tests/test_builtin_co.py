@@ -113,3 +113,11 @@ def test_line_list_chunks_are_abundance_weighted():
     # the 13C16O fundamental sits ~47 cm^-1 to the red (band origin 2096.07, value from memory)
     e13 = co.level_energies("13C16O", v_max=1, j_max=0)
     assert e13[1, 0] == pytest.approx(2096.07, abs=0.1)
+
+
+@pytest.mark.parametrize("iso,label", [(1, "12C16O"), (2, "13C16O"), (3, "12C18O")])
+def test_partition_function_registered_per_isotopologue(iso, label):
+    from retrieve.opacity_build.partition import get_partition_function
+
+    # HITRAN local isotopologue numbering (Gordon et al. 2022): CO:1 = 12C16O, CO:2 = 13C16O, CO:3 = 12C18O
+    assert get_partition_function("CO", iso)(1000.0) == co.partition_function(1000.0, label)

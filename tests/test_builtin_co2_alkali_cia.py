@@ -181,3 +181,13 @@ def test_alkali_lines_connect_the_partition_levels(element):
         assert np.min(np.abs(levels - e_lo)) < 1e-6, label
         assert np.min(np.abs(levels - (e_lo + nu))) < 0.01, label
         assert dict(alkali.LEVELS[element])[e_lo] == g_lo, label
+
+
+@pytest.mark.parametrize("species,func", [("CO2", co2.partition_function),
+                                          ("K", lambda t: alkali.partition_function(t, "K")),
+                                          ("Na", lambda t: alkali.partition_function(t, "Na"))])
+def test_partition_functions_are_registered(species, func):
+    from retrieve.opacity_build.partition import get_partition_function
+
+    # the registry hands out the level-sum Q(T) of the generator (same level structure as the lines)
+    assert get_partition_function(species)(1500.0) == func(1500.0)
