@@ -20,7 +20,7 @@ Layout of ``SURVEY_DIR``::
     <object>/completed.json   written atomically after the run folder is complete
     <object>/error.txt        the error of the last attempt, if it failed
     _logs/<object>.log        the object's log (all attempts, appended)
-    survey_status.ecsv        one row per object: status, error, timing (rewritten as tasks finish)
+    survey_status.ecsv        one row per object: status, error, timing (rewritten as tasks finish, ≤ every 5 s)
     survey_summary.ecsv       one row per object: status, key parameters (median, p16, p84),
                               detections and band depths where available
     survey_band_depths.png    water against methane index, one point per finished object
@@ -81,6 +81,7 @@ SUMMARY = "survey_summary.ecsv"
 FIGURE = "survey_band_depths.png"
 SURVEY_JSON = "survey.json"
 RESERVED = {STATUS, SUMMARY, FIGURE, SURVEY_JSON}
+STATUS_EVERY_S = 5.0  # rewrite the status table at most this often while tasks finish (and at the end)
 CLUSTERS = ("local", "slurm", "pbs")
 SURVEY_TYPES = {
     "cluster": str, "workers": int, "scheduler": str, "queue": str, "account": str, "walltime": str,
@@ -442,7 +443,12 @@ def _n_workers(client) -> int:
 
 
 def _dispatch(client, tasks: list[ObjectTask], progress: SurveyProgress, out: Path) -> None:
-    """Submit every task, follow them to the end, rewrite the status table after each."""
+    """Submit every task, follow them to the end, rewrite the status table as they finish.
+
+    The table is rewritten at most every :data:`STATUS_EVERY_S` seconds: a
+    rewrite costs O(objects), and a survey of hundreds finishing quickly
+    would otherwise spend its client's time writing tables.
+    """
     from distributed import as_completed
     from .progress import TOPIC
     client.subscribe_topic(TOPIC, progress.handle_event)
@@ -453,6 +459,7 @@ def _dispatch(client, tasks: list[ObjectTask], progress: SurveyProgress, out: Pa
             fut = client.submit(run_object, t, key=f"retrieve-object-{t.name}-{os.getpid()}-{time.time_ns()}",
                                 pure=False, priority=-i, retries=0)
             futures[fut] = t
+        last_write = -math.inf
         for fut in as_completed(list(futures), loop=client.loop):
             task = futures[fut]
             try:
@@ -460,7 +467,9 @@ def _dispatch(client, tasks: list[ObjectTask], progress: SurveyProgress, out: Pa
             except Exception as exc:  # worker died (KilledWorker), cancelled, ...
                 outcome = _crash_outcome(task, exc)
             progress.done(task.name, outcome)
-            _write_table(progress.table(), out / STATUS)
+            if time.monotonic() - last_write >= STATUS_EVERY_S:
+                _write_table(progress.table(), out / STATUS)
+                last_write = time.monotonic()
     finally:
         with contextlib.suppress(Exception):
             client.unsubscribe_topic(TOPIC)
