@@ -121,6 +121,17 @@ def test_quick_demo_recovers_truths(tmp_path, project_root, capsys):
             truth = float(rows[name]["truth"][1])
             lo, hi = float(rows[name]["p2_5"][1]), float(rows[name]["p97_5"][1])
             assert lo <= truth <= hi, (comp["name"], name, truth, lo, hi)
+        # the report's numbers are the run's summary.ecsv; identification tables are present
+        summary = Table.read(Path(comp["run_dir"]) / "summary.ecsv", format="ascii.ecsv")
+        for row in summary:
+            assert float(rows[str(row["name"])]["median"][1]) == float(row["median"])
+        if comp["identified"]:
+            assert 'id="table-detections"' in text and 'id="table-bands"' in text
+    # single figures through `retrieve plot`, as PDF, with a parameter subset
+    run_dir = info["companions"][0]["run_dir"]
+    assert main(["plot", run_dir, "--what", "corner", "--format", "pdf", "--params", "log_g,t_deep",
+                 "--out", str(tmp_path / "figs")]) == 0
+    assert (tmp_path / "figs" / "corner.pdf").read_bytes()[:5] == b"%PDF-"  # PDF header (ISO 32000-1, 7.5.2)
     # refuses to run again into the same folder without --overwrite
     assert main(["demo", "--quick", "--out", str(out)]) == 2
 

@@ -108,8 +108,8 @@ FULL = FitSettings(layers=60, angles=4, walkers=32, max_steps=20000, check_every
                    optimiser_max_evaluations=20000, optimiser_popsize=10, ball_scale=1e-3, predictive_draws=200)
 #: ``--quick``: coarser model and a short chain (not converged; intervals are indicative), and
 #: only the companions in :data:`QUICK_COMPANIONS` are fitted (all are simulated).
-QUICK = FitSettings(layers=40, angles=3, walkers=24, max_steps=800, check_every=200,
-                    optimiser_max_evaluations=6000, optimiser_popsize=6, ball_scale=5e-2, predictive_draws=60)
+QUICK = FitSettings(layers=40, angles=3, walkers=24, max_steps=700, check_every=175,
+                    optimiser_max_evaluations=4000, optimiser_popsize=5, ball_scale=5e-2, predictive_draws=60)
 QUICK_COMPANIONS = ("c",)
 
 PRIORS = {
