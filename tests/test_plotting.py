@@ -260,3 +260,14 @@ def test_derived_truths_mass_matches_astropy():
     co = (10 ** -5.0 + 10 ** -3.5) / (10 ** -3.3 + 10 ** -5.0)
     assert out["c_to_o"] == pytest.approx(co, rel=1e-9)
     assert {k: out[k] for k in truths} == truths
+
+
+def test_band_labels_do_not_overlap(rng):
+    datasets, best = _datasets(rng)
+    bands = Table({"molecule": ["H2O", "CH4", "K"], "band": ["a", "b", "c"], "flag": ["detected"] * 3,
+                   "window_lo_um": [1.10, 1.12, 1.50], "window_hi_um": [1.20, 1.22, 1.55]})
+    ax = plot_spectrum(datasets, best, bands=bands).axes[0]
+    pos = {t.get_text(): t.get_position() for t in ax.texts}
+    # the two bands 0.02 µm apart get different label rows; the distant one stays on the first row
+    assert pos["H$_{2}$O"][1] != pos["CH$_{4}$"][1]
+    assert pos["K"][1] == pos["H$_{2}$O"][1]

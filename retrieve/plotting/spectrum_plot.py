@@ -227,13 +227,24 @@ def _draw_dataset(ax, axr, d, model, envelope, factor, first):
 
 def _shade_bands(ax, axr, bands):
     """Shade flagged bands (tentative ones lighter and hatched, labelled with "?")."""
-    seen = {}
+    seen, placed = {}, []
     for molecule, band, lo, hi, tentative in bands:
         colour = seen.setdefault(molecule, style.molecule_colour(molecule, len(seen)))
         patch = ax.axvspan(lo, hi, facecolor=colour, alpha=0.08 if tentative else 0.16, lw=0, zorder=0,
                            hatch="///" if tentative else None, edgecolor=colour if tentative else None)
         patch.set_gid(f"band:{molecule}:{band}" + (":tentative" if tentative else ""))
         axr.axvspan(lo, hi, color=colour, alpha=0.06 if tentative else 0.12, lw=0, zorder=0)
-        ax.text(0.5 * (lo + hi), 0.97, style.molecule_tex(molecule) + ("?" if tentative else ""),
+        centre = 0.5 * (lo + hi)
+        row = _label_row(placed, centre)
+        placed.append((centre, row))
+        ax.text(centre, 0.97 - 0.07 * row, style.molecule_tex(molecule) + ("?" if tentative else ""),
                 transform=ax.get_xaxis_transform(), ha="center", va="top", fontsize=8, color=colour,
                 fontweight="bold")
+
+
+def _label_row(placed, centre: float, min_separation_um: float = 0.12) -> int:
+    """Lowest label row with no earlier label within ``min_separation_um`` (labels must not overlap)."""
+    row = 0
+    while any(r == row and abs(c - centre) < min_separation_um for c, r in placed):
+        row += 1
+    return row
