@@ -271,3 +271,12 @@ def test_band_labels_do_not_overlap(rng):
     # the two bands 0.02 µm apart get different label rows; the distant one stays on the first row
     assert pos["H$_{2}$O"][1] != pos["CH$_{4}$"][1]
     assert pos["K"][1] == pos["H$_{2}$O"][1]
+
+
+def test_constrained_abundance_panel_zooms_on_the_posterior(posterior):
+    fig = plot_abundances(posterior, ["H2O", "CH4"], upper_limits={"CH4": True},
+                          prior_ranges={"H2O": (-12, -1), "CH4": (-12, -1)})
+    q16, q50, q84 = np.quantile(posterior["log_vmr_H2O"], [0.16, 0.5, 0.84])
+    lo, hi = fig.axes[0].get_xlim()
+    assert lo < q16 and hi > q84 and (hi - lo) < 11  # narrower than the prior, still holding the 68 % interval
+    assert fig.axes[1].get_xlim()[0] <= -12  # an upper limit keeps the prior's lower edge in view

@@ -17,6 +17,10 @@ from ..errors import UserError
 from . import style
 
 UPPER_LIMIT_QUANTILE = 0.95
+#: A constrained panel spans the median ± this many half-widths of the 16–84 % interval ...
+ZOOM_HALF_WIDTHS = 6.0
+#: ... but at least ± this many dex.
+MIN_HALF_WIDTH_DEX = 0.25
 
 
 def _column(samples, name: str) -> np.ndarray:
@@ -86,6 +90,12 @@ def plot_abundances(samples, molecules: Sequence[str], upper_limits: Mapping[str
                 ax.axvspan(q16, q84, color=colour, alpha=0.18, lw=0)
                 ax.axvline(q50, color=style.INK, lw=1.2)
                 ax.set_title(rf"{style.molecule_tex(mol)}: ${q50:.2f}^{{+{q84 - q50:.2f}}}_{{-{q50 - q16:.2f}}}$")
+                # zoom on a measured abundance (it would be a spike on the prior's scale)
+                half = max(ZOOM_HALF_WIDTHS * 0.5 * (q84 - q16), MIN_HALF_WIDTH_DEX)
+                if mol in truths:
+                    half = max(half, 1.2 * abs(float(truths[mol]) - q50))
+                low, high = prior_ranges.get(mol, (-np.inf, np.inf))
+                ax.set_xlim(max(q50 - half, low), min(q50 + half, high))
             if mol in truths:
                 ax.axvline(float(truths[mol]), color=style.LAGOON, lw=1.2, ls="--")
             ax.set_xlabel(style.parameter_label(f"log_vmr_{mol}"))
