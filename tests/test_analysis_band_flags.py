@@ -66,8 +66,8 @@ def test_band_significance_equals_direct_chi2_of_the_difference():
     # equivalent sigma of the chi2 upper tail (scipy.stats.chi2.sf and norm.isf)
     expect = stats.norm.isf(stats.chi2.sf(med, idx.size) / 2)
     r = rows["1.67um"]
-    assert r.chi2 == pytest.approx(med, rel=1e-8)
-    assert r.significance_sigma == pytest.approx(expect, rel=1e-6)
+    assert r.chi2 == pytest.approx(med, rel=1e-8, abs=0.0)
+    assert r.significance_sigma == pytest.approx(expect, rel=1e-6, abs=0.0)
     assert r.flag == "detected" and r.n_channels == idx.size
     assert rows["1.2um"].flag == "not detected" and rows["1.2um"].significance_sigma < 1.0
     # channels carrying the signal are the ones next to 1.67 um
@@ -88,11 +88,11 @@ def test_flag_thresholds_and_chi2_conversion():
     assert flag_of(3.0, 4) == "detected" and flag_of(2.5, 4) == "tentative" and flag_of(1.9, 4) == "not detected"
     assert flag_of(math.nan, 0) == "not covered"
     # chi2 with 1 dof: sigma = sqrt(chi2) (a one-dof chi2 is a squared normal deviate; common practice)
-    assert chi2_sigma(9.0, 1) == pytest.approx(3.0, rel=1e-9)
-    assert chi2_sigma(200.0, 5) == pytest.approx(stats.norm.isf(stats.chi2.sf(200.0, 5) / 2), rel=1e-6)
+    assert chi2_sigma(9.0, 1) == pytest.approx(3.0, rel=1e-9, abs=0.0)
+    assert chi2_sigma(200.0, 5) == pytest.approx(stats.norm.isf(stats.chi2.sf(200.0, 5) / 2), rel=1e-6, abs=0.0)
     # far tail where scipy's logsf underflows: continuous with it and growing like sqrt(chi2)
     # (for 1 dof, sigma = sqrt(chi2) exactly: a one-dof chi2 is a squared normal deviate)
-    assert chi2_sigma(1e6, 1) == pytest.approx(1e3, rel=1e-4)
+    assert chi2_sigma(1e6, 1) == pytest.approx(1e3, rel=1e-4, abs=0.0)
     s = chi2_sigma(np.array([1400.0, 1500.0, 3000.0, 1e5]), 4)
     assert np.all(np.isfinite(s)) and np.all(np.diff(s) > 0)
 
