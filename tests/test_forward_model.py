@@ -313,6 +313,8 @@ def test_full_continuum_model_runs(toy_set):
     # extra opacity in a T increasing inward atmosphere can only lower the emergent flux
     # (common practice, no source)
     assert np.all(with_cont <= bare * (1 + 1e-12)) and np.all(np.isfinite(with_cont))
+    # ... and the continuum is actually applied: the flux drops somewhere (else the check above is void)
+    assert np.min(with_cont / bare) < 1 - 1e-3
 
 
 def test_tiny_vmr_and_cross_section_products_keep_precision():
