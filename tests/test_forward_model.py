@@ -300,8 +300,6 @@ def test_opacity_set_search_order_and_errors(tmp_path, monkeypatch):
 
 
 def test_full_continuum_model_runs(toy_set):
-    pytest.importorskip("retrieve.opacity.hminus")
-    pytest.importorskip("retrieve.opacity.rayleigh")
     opac, species = toy_set
     spec = ModelSpec.from_mapping({"absorbers": species, "profile": "guillot", "cia": [],
                                    "hminus": True, "rayleigh": True})
