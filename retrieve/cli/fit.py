@@ -38,13 +38,17 @@ def run(args: argparse.Namespace) -> int:
     kwargs = dict(spectra=args.spectra, out_dir=args.out, workers=args.workers, max_steps=args.max_steps,
                   seed=args.seed, resume=args.resume, overwrite=args.overwrite,
                   progress=False if args.no_progress else None)
-    if args.mpi:
-        from ..survey.mpi_pool import mpi_fit
-        result = mpi_fit(args.config, **kwargs)
-        if result is None:  # a worker rank: rank 0 reports
-            return 0
-    else:
-        result = fit(args.config, **kwargs)
+    with warnings.catch_warnings(record=True) as caught:   # e.g. "did not converge": one tidy line each
+        warnings.simplefilter("always", RuntimeWarning)
+        if args.mpi:
+            from ..survey.mpi_pool import mpi_fit
+            result = mpi_fit(args.config, **kwargs)
+        else:
+            result = fit(args.config, **kwargs)
+    for w in caught:
+        print(f"retrieve: warning: {w.message}", file=sys.stderr)
+    if result is None:  # an MPI worker rank: rank 0 reports
+        return 0
     state = "converged" if result.converged else "NOT converged"
     print(f"{state} after {result.n_steps} steps × {result.n_walkers} walkers; "
           f"max τ = {max(result.tau):.1f}; acceptance {result.acceptance_fraction:.2f}; "
