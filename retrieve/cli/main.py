@@ -17,16 +17,16 @@ from ..errors import UserError
 
 # Sub-command modules, in the order they appear in --help.
 COMMAND_MODULES = [
-    "describe",
-    "fit",
-    "simulate",
-    "opacity",
-    "plot",
-    "report",
     "demo",
-    "batch",
+    "describe",
+    "simulate",
+    "fit",
     "identify",
     "bands",
+    "plot",
+    "report",
+    "batch",
+    "opacity",
 ]
 
 
