@@ -111,7 +111,8 @@ _KILL_SCRIPT = textwrap.dedent("""
     cfg = parse_config({{"parameters": {{"coef_0": {{"prior": "uniform", "low": -5, "high": 5}},
                                         "coef_1": {{"prior": "uniform", "low": -5, "high": 5}}}},
                          "datasets": [{{"name": "ifs", "file": {path!r}}}],
-                         "sampler": {{"max_steps": 10000000, "check_every": 50, "seed": 9, "progress": False}}}})
+                         "sampler": {{"max_steps": 10000000, "check_every": 50, "seed": 9, "progress": False,
+                                     "tau_factor": 1e9}}}})   # never stops by convergence
     fit(cfg, out_dir={out!r}, model_factory=LinearModelFactory(2))
 """)
 
@@ -120,7 +121,8 @@ def _kill_cfg(path, max_steps):
     return parse_config({"parameters": {"coef_0": {"prior": "uniform", "low": -5, "high": 5},
                                         "coef_1": {"prior": "uniform", "low": -5, "high": 5}},
                          "datasets": [{"name": "ifs", "file": str(path)}],
-                         "sampler": {"max_steps": max_steps, "check_every": 50, "seed": 9, "progress": False}})
+                         "sampler": {"max_steps": max_steps, "check_every": 50, "seed": 9, "progress": False,
+                                     "tau_factor": 1e9}})
 
 
 @pytest.mark.slow
