@@ -68,6 +68,12 @@ def dataset_table(dataset: Dataset, meta: dict | None = None):
     return table
 
 
+def _current_umask() -> int:
+    mask = os.umask(0)
+    os.umask(mask)
+    return mask
+
+
 def atomic_write_text(path: Path, text: str, overwrite: bool = False) -> None:
     """Write ``text`` to ``path`` via temp file + fsync + :func:`os.replace`.
 
@@ -82,6 +88,8 @@ def atomic_write_text(path: Path, text: str, overwrite: bool = False) -> None:
     if not path.parent.is_dir():
         raise InputFileError(f"{path}: folder {path.parent} does not exist")
     fd, tmp = tempfile.mkstemp(dir=path.parent, prefix=f".{path.name}.", suffix=".tmp")
+    # mkstemp creates the file 0600; give the result the permissions a plain open() would
+    os.fchmod(fd, 0o666 & ~_current_umask())
     try:
         with os.fdopen(fd, "w", encoding="utf-8") as fh:
             fh.write(text)
