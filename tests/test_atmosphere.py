@@ -12,6 +12,7 @@ from retrieve.errors import ConfigError, ModelEvaluationError
 
 def test_pressure_levels_log_spaced():
     p = pressure_levels()
+    # documented defaults: 80 levels from 1e-5 to 100 bar (DEVELOPERS.md TOML layout, [model])
     assert p.size == 80 and p[0] == pytest.approx(1e-5, rel=1e-6, abs=0.0) and p[-1] == pytest.approx(100.0, rel=1e-6, abs=0.0)
     # constant ratio between levels = log spacing (common practice, no source)
     np.testing.assert_allclose(np.diff(np.log(p)), np.log(1e7) / 79, rtol=1e-12)

@@ -135,6 +135,7 @@ def _write_exomol_from_hitran(reference_dir, folder):
 def test_exomol_reader_reproduces_hitran_strengths(reference_dir, tmp_path):
     nu, e_low, j_low, abundance = _write_exomol_from_hitran(reference_dir, tmp_path)
     info = read_def(tmp_path / "12C-16O__Test.def")
+    # the .def file's own text, written above (mass 27.994915 Da, dataset name "Test")
     assert info["mass_amu"] == pytest.approx(27.994915, rel=1e-6, abs=0.0) and info["dataset"] == "Test"
     ll = concatenate(read_exomol(tmp_path / "12C-16O__Test.def", isotopologue_abundance=abundance,
                                  chunk_lines=300))
@@ -273,6 +274,7 @@ def test_hitran_ch4_nu3_band_totals(reference_dir):
     folder = reference_dir / "hitran" / "ch4_nu3"
     path = folder / "CH4_M6_I1_0_0_0_0_1A1_to_0_0_1_0_1F2.par"
     ll = concatenate(read_hitran(path, partition=Q_FLAT, chunk_lines=2000))
+    # 12CH4 mass from the HITRAN isotopologue table (hapi.molecularMass(6, 1) = 16.0313 Da)
     assert ll.species == "CH4" and ll.mass_amu == pytest.approx(16.0313, rel=1e-6, abs=0.0)
     # source: ../shared/reference/README.md table (HITRAN2020 ν3 band of 12CH4): 6489 lines,
     # 2731-3254 cm⁻¹, Σ S(296 K) = 1.082e-17 cm/molecule
