@@ -162,7 +162,8 @@ def test_polyad_windows_hold_cited_strengths():
                     if lo < (v[1] if v[1] is not None else ch4.term_value(v[0])) < hi)
         m = (ll.wavenumber_cm > lo) & (ll.wavenumber_cm < hi)
         assert cited > 0
-        assert s296[m].sum() / ch4.ABUNDANCE == pytest.approx(cited, rel=0.30, abs=0.0)
+        # measured 0.8-3.2 % off: 5 % (a lost or doubled pseudo-band would not hide inside 30 %)
+        assert s296[m].sum() / ch4.ABUNDANCE == pytest.approx(cited, rel=0.05, abs=0.0)
 
 
 def test_pseudo_band_origins_within_1pct_of_catalogue():

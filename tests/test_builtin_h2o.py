@@ -132,14 +132,13 @@ def test_line_list_regions_and_hot_bands():
     assert np.all(np.diff(ll.wavenumber_cm) >= 0)
     s296, s2000 = ll.strength(296.0), ll.strength(2000.0)
     nu = ll.wavenumber_cm
-    # absorption regions at 0.94, 1.14, 1.4, 1.9, 2.7 µm: each window holds its band system
-    # (region totals = sums of the cited band strengths, within 30%)
     # windows around the 0.94, 1.14, 1.4, 1.9, 2.7 µm band systems: the 296 K line sum matches the
-    # sum of the cited band strengths with origins inside (within 30%; some lines fall outside)
+    # sum of the cited band strengths with origins inside (some lines fall outside, others in)
     for lo, hi in [(10000, 11400), (8400, 9400), (6600, 7800), (4900, 5700), (3200, 4300)]:
         m = (nu > lo) & (nu < hi)
         cited = sum(s for v, s in h2o.BAND_STRENGTH_296.items() if lo < h2o.ORIGINS[v] < hi)
-        assert s296[m].sum() / h2o.ABUNDANCE == pytest.approx(cited, rel=0.30, abs=0.0)
+        # measured 0.1-5.9 % off (hot and neighbouring lines spill in): 10 %
+        assert s296[m].sum() / h2o.ABUNDANCE == pytest.approx(cited, rel=0.10, abs=0.0)
     # hot bands raise the share of lines from excited vibrational states at high T
     hot = ll.e_lower_cm > 1500
     assert s2000[hot].sum() / s2000.sum() > 10 * s296[hot].sum() / s296.sum()

@@ -96,12 +96,13 @@ def test_line_list_regions():
     assert 1e4 < len(ll) < 5e5
     s296, s1500 = ll.strength(296.0), ll.strength(1500.0)
     nu = ll.wavenumber_cm
-    # 3.0, 2.0, 1.5 and 1.0 µm band systems (issue 4): windows hold the cited band strengths (30%)
+    # 3.0, 2.0, 1.5 and 1.0 µm band systems (issue 4): windows hold the cited band strengths
     for lo, hi in [(2900, 3700), (4200, 5400), (6300, 7100), (9000, 10600)]:
         cited = sum(b[3] for b in nh3.BANDS if lo < nh3.term_value(b[0], 0) < hi)
         m = (nu > lo) & (nu < hi)
         assert cited > 0
-        assert s296[m].sum() / nh3.ABUNDANCE == pytest.approx(cited, rel=0.30, abs=0.0)
+        # measured 0.1-1.6 % off: 5 % (a lost or doubled band would not hide inside 30 %)
+        assert s296[m].sum() / nh3.ABUNDANCE == pytest.approx(cited, rel=0.05, abs=0.0)
     # hot bands from the umbrella levels gain weight with temperature
     hot = ll.e_lower_cm > 900
     assert s1500[hot].sum() / s1500.sum() > 5 * s296[hot].sum() / s296.sum()
