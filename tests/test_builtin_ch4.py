@@ -77,9 +77,11 @@ def test_nu3_integrated_strength(ch4_dir):
     # HITRAN2020 ν3 band sum 1.082e-17 cm/molecule (Gordon et al. 2022, reference README): within 20%
     assert ref["s"].sum() == pytest.approx(1.082e-17, rel=0.005, abs=0.0)
     assert s.sum() == pytest.approx(ref["s"].sum(), rel=0.20, abs=0.0)
-    # P/Q/R branch sums within 20% each (the Herman-Wallis term was fitted to them)
+    assert s.sum() == pytest.approx(ref["s"].sum(), rel=0.05, abs=0.0)   # measured 2.3 % off
+    # P/Q/R branch sums within 20% each (the Herman-Wallis term was fitted to them); measured
+    # 0.3 / 1.1 / 4.3 % off, so 6 % keeps the check sharp
     for d in (-1, 0, 1):
-        assert s[dj == d].sum() == pytest.approx(ref["s"][ref["j_up"] - ref["j_lo"] == d].sum(), rel=0.2, abs=0.0)
+        assert s[dj == d].sum() == pytest.approx(ref["s"][ref["j_up"] - ref["j_lo"] == d].sum(), rel=0.06, abs=0.0)
 
 
 def test_nu3_envelope_at_r100(ch4_dir):
