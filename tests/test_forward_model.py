@@ -386,7 +386,7 @@ def test_flat_k_distributions_equal_cross_sections():
 def test_any_parameters_give_a_spectrum_or_a_model_error(toy_set):
     # property: evaluate() returns finite fluxes or raises ModelEvaluationError, whatever the numbers
     # (the likelihood relies on it; common practice, no source)
-    from hypothesis import HealthCheck, given, settings
+    from hypothesis import HealthCheck, example, given, settings
     from hypothesis import strategies as st
 
     opac, species = toy_set
@@ -394,14 +394,27 @@ def test_any_parameters_give_a_spectrum_or_a_model_error(toy_set):
                                                  "knot_pressures_bar": [1e-3, 0.1, 10.0], **NO_CONTINUUM}),
                          [], opac)
     num = st.one_of(st.floats(allow_nan=True, allow_infinity=True), st.floats(-10, 10), st.floats(100, 5000))
+    # each parameter is either wild or a valid value, so that both outcomes are drawn
+    valid = base_params(species, t_knot_0=900.0, t_knot_1=1200.0, t_knot_2=1800.0,
+                        log_p_cloud_top=0.5, cloud_tau_slope=2.0)
+    assert set(valid) == set(model.parameter_names)
+    draw = {n: st.one_of(st.just(valid[n]), st.floats(valid[n] * 0.5, valid[n] * 1.5), num)
+            if valid[n] > 0 else st.one_of(st.just(valid[n]), st.floats(valid[n] * 1.5, valid[n] * 0.5), num)
+            for n in model.parameter_names}
 
     @settings(max_examples=150, deadline=None, suppress_health_check=[HealthCheck.too_slow])
-    @given(st.fixed_dictionaries({n: num for n in model.parameter_names}))
+    @given(st.fixed_dictionaries(draw))
+    @example(valid)
     def check(params):
         try:
             out = model.evaluate(params)
         except ModelEvaluationError:
             return
+        evaluated.append(1)
         assert np.all(np.isfinite(out.flux_highres))
 
+    evaluated = []
     check()
+    # the finite-flux branch must have been reached, not only the error branch (before the valid
+    # draws above, none of 150 examples ever got past the error branch)
+    assert len(evaluated) >= 2   # the explicit valid example and at least one drawn one
