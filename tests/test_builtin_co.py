@@ -96,8 +96,11 @@ def test_integrated_band_strengths_vs_hitran_sample(reference_dir, dv):
     ours = co.line_arrays("12C16O")
     sel = (ours["v_lower"] == 0) & (ours["v_upper"] == dv)
     # integrated 296 K band strengths of the v=0 -> dv bands summed over the HITRAN2020 sample
-    # (Gordon et al. 2022); literature: 1-0 ~ 9.8e-18, 2-0 ~ 7.5e-20 cm/molecule (values from memory); 30 %
-    assert ours["strength_296"][sel].sum() == pytest.approx(ref_sum, rel=0.30, abs=0.0)
+    # (Gordon et al. 2022); literature: 1-0 ~ 9.8e-18, 2-0 ~ 7.5e-20 cm/molecule (values from memory).
+    # Measured: 1-0 and 2-0 within 2 % of the sample, 3-0 about 21 % high (recalled band moment, see
+    # opacity_tables/README.md) -> 5 % for the first two, 30 % for the second overtone.
+    tolerance = 0.05 if dv < 3 else 0.30
+    assert ours["strength_296"][sel].sum() == pytest.approx(ref_sum, rel=tolerance, abs=0.0)
     literature = {1: 9.8e-18, 2: 7.5e-20, 3: 4.9e-22}[dv]  # values from memory
     assert ours["strength_296"][sel].sum() == pytest.approx(literature, rel=0.30, abs=0.0)
 

@@ -46,8 +46,8 @@ def test_truth_profiles_match_the_stated_classes(comp, t_1bar, lo, hi):
     prof = build_profile("gradient", {"gradient_pressures_bar": list(sc.GRADIENT_PRESSURES_BAR)}, "test")
     p = np.array([1e-4, 0.05, 1.0, 30.0])
     t = prof.temperature(p, comp.truths)
-    assert t[-1] == pytest.approx(comp.truths["t_deep"])
-    assert lo < t[2] < hi and t[2] == pytest.approx(t_1bar, rel=0.01)
+    assert t[-1] == pytest.approx(comp.truths["t_deep"], rel=1e-12, abs=0)
+    assert lo < t[2] < hi and t[2] == pytest.approx(t_1bar, rel=0.01, abs=0)
     assert np.all(np.diff(t) > 0)  # no inversion
 
 
@@ -155,7 +155,7 @@ def test_examples_are_the_scenario_files(project_root):
         corr = spec.covariance[0, 1] / (s[0] * s[1])
         dl = spec.wavelength_um[1] - spec.wavelength_um[0]
         expected = sc.INSTRUMENT["correlated_fraction"] * np.exp(-0.5 * (dl / sc.INSTRUMENT["correlation_length_um"]) ** 2)
-        assert corr == pytest.approx(expected, rel=1e-9)
+        assert corr == pytest.approx(expected, rel=1e-9, abs=0)
 
 
 @pytest.mark.slow
