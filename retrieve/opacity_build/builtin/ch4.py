@@ -101,8 +101,9 @@ import math
 
 import numpy as np
 
-from ...constants import C2_CM_K, C_CGS, H_CGS, MASS_AMU
+from ...constants import C2_CM_K, C_CGS, H_CGS
 from ..linelist import LineList
+from .assemble import assemble_line_list
 from ..partition import register_partition_function
 from .spherical_top import f2_band, rotational_energy, spin_weight_sum
 
@@ -289,26 +290,7 @@ def line_list(max_j: int = 50, wn_min: float = 1500.0, wn_max: float = 13000.0,
     hot_bands : bool
         Include bands from excited vibrational levels.
     """
-    q_ref = partition_function(T_REF)
-    qs = {t: partition_function(t) for t in check_temperatures}
-    out = []
-    for band in band_list(hot_bands):
-        nu, el, s, _ = band_lines(band, max_j)
-        keep = (nu >= wn_min) & (nu <= wn_max)
-        nu, el, s = nu[keep], el[keep], s[keep]
-        smax = np.zeros_like(s)
-        for t, q in qs.items():
-            st = (s * q_ref / q * np.exp(-C2_CM_K * el * (1.0 / t - 1.0 / T_REF))
-                  * np.expm1(-C2_CM_K * nu / t) / np.expm1(-C2_CM_K * nu / T_REF))
-            smax = np.maximum(smax, st)
-        keep = smax >= min_strength
-        out.append((nu[keep], el[keep], s[keep]))
-    nu, el, s = (np.concatenate([o[i] for o in out]) for i in range(3))
-    order = np.argsort(nu)
-    nu, el, s = nu[order], el[order], s[order]
-    n = nu.size
-    return LineList(species=SPECIES, wavenumber_cm=nu, e_lower_cm=el, mass_amu=MASS_AMU[SPECIES],
-                    partition=partition_function, strength_ref=s, t_ref=T_REF, partition_ref=q_ref,
-                    isotopologue_abundance=ABUNDANCE, abundance_weighted=True, isotopologue="12C-1H4",
-                    gamma_h2=np.full(n, BROADENING["gamma_h2"]), n_h2=np.full(n, BROADENING["n_h2"]),
-                    gamma_he=np.full(n, BROADENING["gamma_he"]), n_he=np.full(n, BROADENING["n_he"]))
+    return assemble_line_list((band_lines(band, max_j)[:3] for band in band_list(hot_bands)), species=SPECIES, isotopologue="12C-1H4",
+                              abundance=ABUNDANCE, t_ref=T_REF, partition=partition_function,
+                              broadening=BROADENING, wn_min=wn_min, wn_max=wn_max,
+                              min_strength=min_strength, check_temperatures=check_temperatures)

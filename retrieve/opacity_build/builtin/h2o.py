@@ -90,8 +90,9 @@ import math
 
 import numpy as np
 
-from ...constants import C2_CM_K, C_CGS, H_CGS, MASS_AMU
+from ...constants import C2_CM_K, C_CGS, H_CGS
 from ..linelist import LineList
+from .assemble import assemble_line_list
 from ..partition import register_partition_function
 from .asymmetric_top import WatsonConstants, honl_london, rotor_levels, rotor_levels_many
 
@@ -320,16 +321,6 @@ def band_lines(lower, upper, r2: float, max_j: int):
     return nu, el, s
 
 
-def _make_linelist(nu, el, s) -> LineList:
-    n = nu.size
-    return LineList(species=SPECIES, wavenumber_cm=nu, e_lower_cm=el, mass_amu=MASS_AMU[SPECIES],
-                    partition=partition_function, strength_ref=s, t_ref=T_REF,
-                    partition_ref=partition_function(T_REF), isotopologue_abundance=ABUNDANCE,
-                    abundance_weighted=True, isotopologue="1H2-16O",
-                    gamma_h2=np.full(n, BROADENING["gamma_h2"]), n_h2=np.full(n, BROADENING["n_h2"]),
-                    gamma_he=np.full(n, BROADENING["gamma_he"]), n_he=np.full(n, BROADENING["n_he"]))
-
-
 def line_list(max_j: int = 32, wn_min: float = 1000.0, wn_max: float = 14000.0,
               min_strength: float = 3e-26, check_temperatures=(296.0, 1000.0, 3000.0),
               hot_bands: bool = True) -> LineList:
@@ -354,21 +345,8 @@ def line_list(max_j: int = 32, wn_min: float = 1000.0, wn_max: float = 14000.0,
     LineList
         Strengths at 296 K (HITRAN form) with :func:`partition_function`.
     """
-    q_ref = partition_function(T_REF)
-    out = []
-    for lower, upper, r2 in band_list():
-        if not hot_bands and any(lower):
-            continue
-        nu, el, s = band_lines(lower, upper, r2, max_j)
-        keep = (nu >= wn_min) & (nu <= wn_max)
-        nu, el, s = nu[keep], el[keep], s[keep]
-        smax = np.zeros_like(s)
-        for t in check_temperatures:
-            st = (s * q_ref / partition_function(t) * np.exp(-C2_CM_K * el * (1.0 / t - 1.0 / T_REF))
-                  * np.expm1(-C2_CM_K * nu / t) / np.expm1(-C2_CM_K * nu / T_REF))
-            smax = np.maximum(smax, st)
-        keep = smax >= min_strength
-        out.append((nu[keep], el[keep], s[keep]))
-    nu, el, s = (np.concatenate([o[i] for o in out]) for i in range(3))
-    order = np.argsort(nu)
-    return _make_linelist(nu[order], el[order], s[order])
+    return assemble_line_list((band_lines(lower, upper, r2, max_j) for lower, upper, r2 in band_list()
+                               if hot_bands or not any(lower)), species=SPECIES, isotopologue="1H2-16O",
+                              abundance=ABUNDANCE, t_ref=T_REF, partition=partition_function,
+                              broadening=BROADENING, wn_min=wn_min, wn_max=wn_max,
+                              min_strength=min_strength, check_temperatures=check_temperatures)
