@@ -16,6 +16,7 @@ prior").
 """
 from __future__ import annotations
 
+import inspect
 import math
 from collections.abc import Mapping
 
@@ -92,6 +93,9 @@ class Prior:
         for k, v in values.items():
             if not math.isfinite(v):
                 raise ConfigError(f"{where}: key {k!r} must be finite, got {v}")
+        # a constructor that accepts ``where`` uses it to name the key in its own messages
+        if "where" in inspect.signature(cls).parameters:
+            values["where"] = where
         return cls(**values)
 
 
@@ -124,13 +128,6 @@ class Uniform(Prior):
     def bounds(self):
         return self.low, self.high
 
-    @classmethod
-    def from_mapping(cls, mapping, where):
-        check_keys(mapping, ("prior",) + cls.keys, where, required=cls.keys)
-        low = float(expect_type(mapping["low"], (int, float), where, "low"))
-        high = float(expect_type(mapping["high"], (int, float), where, "high"))
-        return cls(low, high, where)
-
 
 @register_prior
 class LogUniform(Prior):
@@ -160,13 +157,6 @@ class LogUniform(Prior):
     def bounds(self):
         return self.low, self.high
 
-    @classmethod
-    def from_mapping(cls, mapping, where):
-        check_keys(mapping, ("prior",) + cls.keys, where, required=cls.keys)
-        low = float(expect_type(mapping["low"], (int, float), where, "low"))
-        high = float(expect_type(mapping["high"], (int, float), where, "high"))
-        return cls(low, high, where)
-
 
 @register_prior
 class Gaussian(Prior):
@@ -192,13 +182,6 @@ class Gaussian(Prior):
     def bounds(self):
         z = special.ndtri(1 - _TAIL)
         return self.mean - z * self.sigma, self.mean + z * self.sigma
-
-    @classmethod
-    def from_mapping(cls, mapping, where):
-        check_keys(mapping, ("prior",) + cls.keys, where, required=cls.keys)
-        mean = float(expect_type(mapping["mean"], (int, float), where, "mean"))
-        sigma = float(expect_type(mapping["sigma"], (int, float), where, "sigma"))
-        return cls(mean, sigma, where)
 
 
 @register_prior
@@ -237,12 +220,6 @@ class TruncatedGaussian(Prior):
 
     def __setstate__(self, state):
         self.__init__(**state)
-
-    @classmethod
-    def from_mapping(cls, mapping, where):
-        check_keys(mapping, ("prior",) + cls.keys, where, required=cls.keys)
-        vals = {k: float(expect_type(mapping[k], (int, float), where, k)) for k in cls.keys}
-        return cls(where=where, **vals)
 
 
 def prior_from_mapping(mapping: Mapping, where: str) -> Prior:
