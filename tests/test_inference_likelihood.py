@@ -131,3 +131,17 @@ def test_spectrum_and_photometry_terms_add():
     expected = (np.sum(stats.norm(c0 + c1 * (LAM - 1), SIG).logpdf(spec.flux))
                 + np.sum(stats.norm(1.2 * (c0 + c1 * (wl_phot - 1)), phot.uncertainty).logpdf(phot.flux)))
     np.testing.assert_allclose(ll, expected, rtol=1e-12)
+
+
+def test_correlated_kernel_with_a_full_covariance_is_a_one_line_config_error():
+    from retrieve.errors import ConfigError
+    from retrieve.inference.likelihood import DatasetTerm
+
+    wl = np.linspace(1.0, 1.5, 4)
+    ds = Dataset("ifs", "spectrum", wl, np.ones(4), np.full(4, 0.1), covariance=np.eye(4) * 0.01,
+                 source="spec.ecsv")
+    with pytest.raises(ConfigError) as err:
+        DatasetTerm(ds, correlated=True)
+    message = str(err.value)
+    assert message.startswith("spec.ecsv: dataset 'ifs'") and "\n" not in message
+    DatasetTerm(ds, correlated=False)   # the covariance alone is fine

@@ -25,7 +25,7 @@ from collections.abc import Callable, Mapping, Sequence
 
 import numpy as np
 
-from ..errors import ModelEvaluationError
+from ..errors import ConfigError, ModelEvaluationError
 from .noise import NoiseModel
 from .priors import Prior
 
@@ -61,6 +61,10 @@ class DatasetTerm:
         self.scale = bool(scale)
         self.inflate = bool(inflate)
         self.correlated = bool(correlated)
+        if self.correlated and dataset.covariance is not None:
+            source = dataset.source if dataset.source is not None else f"dataset {dataset.name!r}"
+            raise ConfigError(f"{source}: dataset {dataset.name!r} carries a full covariance, so "
+                              "correlated_noise = true cannot be used; drop one of the two")
         self.noise = NoiseModel(dataset.wavelength_um, dataset.variance(), dataset.covariance,
                                 inflate=inflate, correlated=correlated)
 
