@@ -165,7 +165,7 @@ def test_convergence_rule_and_burn_in():
 
 
 def test_autocorr_time_of_an_ar1_process():
-    # AR(1) x_t = φ x_{t-1} + ε has τ = (1 + φ) / (1 − φ) (e.g. Sokal 1997, lecture notes on MC methods)
+    # AR(1) x_t = φ x_{t-1} + ε has τ = (1 + φ) / (1 − φ) (Sokal 1997, "Monte Carlo Methods in Statistical Mechanics: Foundations and New Algorithms")
     rng = np.random.default_rng(2)
     phi, n, w = 0.8, 20000, 4
     x = np.zeros((n, w))
