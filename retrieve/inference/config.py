@@ -45,8 +45,10 @@ SAMPLER_TYPES = {
     "tau_factor": (int, float), "tau_rtol": (int, float), "burn_in_tau": (int, float),
     "thin_tau": (int, float), "burn_in": int, "thin": int, "optimiser": str,
     "optimiser_max_evaluations": int, "optimiser_popsize": int, "ball_scale": (int, float),
-    "predictive_draws": int, "progress": bool, "moves": str,
+    "predictive_draws": int, "progress": bool, "moves": str, "ball": str,
+    "polish_max_evaluations": int, "polish_candidates": int,
 }
+BALLS = ("hessian", "fixed")
 OPTIMISERS = ("differential-evolution", "none")
 # Parameters that are temperatures somewhere in the atmosphere (checked against table coverage).
 _TEMPERATURE = re.compile(r"^(t_iso|t_deep|t_knot_\d+)$")
@@ -248,7 +250,10 @@ def _sampler(table: Mapping, where: str) -> SamplerSettings:
     for key in ("max_steps", "check_every", "optimiser_max_evaluations", "optimiser_popsize"):
         if key in values and values[key] < 1:
             raise ConfigError(f"{where}: {key!r} must be >= 1, got {values[key]}")
-    for key in ("walkers", "burn_in", "predictive_draws"):
+    if "ball" in values and values["ball"] not in BALLS:
+        raise ConfigError(f"{where}: ball {values['ball']!r} unknown{suggest(values['ball'], BALLS)}; "
+                          f"choose one of {', '.join(BALLS)}")
+    for key in ("walkers", "burn_in", "predictive_draws", "polish_max_evaluations", "polish_candidates"):
         if key in values and values[key] < 0:
             raise ConfigError(f"{where}: {key!r} must be >= 0, got {values[key]}")
     if "thin" in values and values["thin"] < 1:

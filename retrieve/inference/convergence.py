@@ -2,10 +2,13 @@
 
 The integrated autocorrelation time τ of each parameter is estimated with
 ``emcee.autocorr.integrated_time`` (Goodman & Weare 2010; the windowed
-estimator of Sokal 1997 with c = 5) on the whole chain, ``tol=0`` so that it
-always returns an estimate.  The chain is declared converged when
+estimator of Sokal 1997 with c = 5), ``tol=0`` so that it always returns an
+estimate, on the chain after a start-up discard (:func:`tau_discard`):
+``burn_in_tau`` × the previous check's max τ, at most half the chain (half
+the chain at the first check) — estimating τ on the post-burn-in part is
+common practice (no source).  The chain is declared converged when
 
-* its length exceeds ``tau_factor`` × max τ (default 50), and
+* its length after the discard exceeds ``tau_factor`` × max τ (default 50), and
 * every τ changed by less than ``tau_rtol`` (default 1 %) relative to the
   previous check,
 
@@ -41,6 +44,22 @@ def autocorr_time(chain: np.ndarray) -> np.ndarray:
     return np.asarray(tau, dtype=float)
 
 
+def tau_discard(n_steps: int, tau_prev: np.ndarray | None, burn_in_tau: float = 3.0) -> int:
+    """Steps dropped from the start of the chain before τ is estimated.
+
+    ``ceil(burn_in_tau × max τ_prev)`` capped at ``n_steps // 2``; half the
+    chain when there is no finite previous τ.
+    """
+    half = int(n_steps) // 2
+    if tau_prev is None:
+        return half
+    finite = np.asarray(tau_prev, dtype=float)
+    finite = finite[np.isfinite(finite)]
+    if finite.size == 0:
+        return half
+    return min(int(math.ceil(burn_in_tau * float(finite.max()))), half)
+
+
 @dataclasses.dataclass(frozen=True)
 class ConvergenceRule:
     """Stopping rule parameters (see module docstring)."""
@@ -49,7 +68,7 @@ class ConvergenceRule:
     tau_rtol: float = 0.01
 
     def converged(self, n_steps: int, tau: np.ndarray, tau_prev: np.ndarray | None) -> bool:
-        """True when the chain is long and τ is stable."""
+        """True when the chain is long and τ is stable (``n_steps``: length after the discard)."""
         if tau_prev is None or not np.all(np.isfinite(tau)) or not np.all(np.isfinite(tau_prev)):
             return False
         long_enough = n_steps > self.tau_factor * float(np.max(tau))
