@@ -98,7 +98,7 @@ def simulate(folder: Path, opacity_dir: str, layers: int, seed: int = 1) -> tupl
 
 
 def config_text(opacity_dir: str, layers: int, ifs_sigma: float, max_steps: int, seed: int,
-                moves: str = "stretch") -> str:
+                moves: str = "stretch", check_every: int = 50) -> str:
     def val(v):
         return json.dumps(v)
     lines = ["[object]", 'name = "benchmark"', "", "[model]"]
@@ -110,8 +110,10 @@ def config_text(opacity_dir: str, layers: int, ifs_sigma: float, max_steps: int,
     lines.append(f'log_inflate_ifs = {{ prior = "uniform", low = {b - 4:.2f}, high = {b + 2:.2f} }}')
     lines += ["", "[[datasets]]", 'name = "ifs"', 'file = "ifs.ecsv"', "inflate_errors = true",
               "", "[[datasets]]", 'name = "phot"', 'file = "phot.ecsv"',
-              "", "[sampler]", f"max_steps = {max_steps}", "check_every = 250", f"seed = {seed}",
+              "", "[sampler]", f"max_steps = {max_steps}", f"check_every = {check_every}", f"seed = {seed}",
               f'moves = "{moves}"']
+    if moves == "pilot-mixture":
+        lines.append('pilot = "nested"')
     return "\n".join(lines) + "\n"
 
 
@@ -121,8 +123,13 @@ def main(argv=None) -> int:
     ap.add_argument("--max-steps", type=int, default=40000)
     ap.add_argument("--layers", type=int, default=80)
     ap.add_argument("--seed", type=int, default=0)
-    ap.add_argument("--moves", default="differential-evolution", choices=("stretch", "differential-evolution"),
-                    help="emcee proposal ([sampler] moves); the stretch move mixes poorly here")
+    ap.add_argument("--moves", default="pilot-mixture",
+                    choices=("stretch", "differential-evolution", "pilot-mixture"),
+                    help="emcee proposal ([sampler] moves); pilot-mixture adds pilot = \"nested\"; "
+                         "the local moves alone mix slowly along this posterior's gravity–abundance ridge")
+    ap.add_argument("--check-every", type=int, default=50,
+                    help="[sampler] check_every: steps between τ checks (the 1 %% stability test "
+                         "compares consecutive checks)")
     ap.add_argument("--keep", metavar="RUN_DIR", help="write the run folder here (default: a temporary folder)")
     args = ap.parse_args(argv)
     from retrieve.inference import fit
@@ -136,7 +143,8 @@ def main(argv=None) -> int:
         ifs, _ = simulate(tmp, opacity_dir, args.layers)
         sigma = float(np.median(read_dataset(ifs).uncertainty))
         cfg = tmp / "fit.toml"
-        cfg.write_text(config_text(opacity_dir, args.layers, sigma, args.max_steps, args.seed, args.moves))
+        cfg.write_text(config_text(opacity_dir, args.layers, sigma, args.max_steps, args.seed, args.moves,
+                                  args.check_every))
         out = Path(args.keep) if args.keep else tmp / "run"
         t0 = time.perf_counter()
         res = fit(cfg, out_dir=out, workers=args.workers, overwrite=bool(args.keep))
@@ -150,6 +158,10 @@ def main(argv=None) -> int:
         print(f"wall time to {'convergence' if res.converged else 'max_steps'} on {args.workers} workers: "
               f"{wall:.1f} s ({wall / 60:.1f} min)")
         print(f"posterior evaluations: {res.n_evaluations} -> {res.evaluations_per_s:.1f} per second")
+        pilot = manifest.get("pilot") or {}
+        if pilot:
+            print(f"pilot: {pilot['likelihood_calls']} likelihood calls, {pilot['distinct_samples']} distinct "
+                  f"samples, proposal mixture of {pilot.get('mixture_components', 0)} components")
         if res.failures:
             print("evaluation failures: " + ", ".join(f"{k}: {v}" for k, v in res.failures.most_common()))
         rows = {r["name"]: r for r in res.summary}

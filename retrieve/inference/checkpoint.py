@@ -18,9 +18,12 @@ Layout (format ``retrieve-chain``, version 1)::
     /accepted        (n_walkers,) int64
     /tau_history     (n_checks, 1 + n_dim) float64: step, τ_1 … τ_n
     /rng/keys        (624,) uint32   MT19937 state of emcee's RandomState
+    /proposal/weights, /proposal/means, /proposal/covariances
+                     the frozen Gaussian mixture of the "pilot-mixture" moves
+                     (only when those moves are used)
     attrs: format, format_version, param_names (JSON), rng_pos, rng_has_gauss,
            rng_cached_gaussian, config_digest, seed, converged, failures (JSON),
-           n_evaluations, elapsed_s
+           n_evaluations, elapsed_s, pilot (JSON: the pilot run's summary, or {})
 """
 from __future__ import annotations
 
@@ -33,6 +36,7 @@ import h5py
 import numpy as np
 
 from ..errors import InputFileError
+from .mixture import GaussianMixture
 
 FORMAT_NAME = "retrieve-chain"
 FORMAT_VERSION = 1
@@ -54,6 +58,8 @@ class Checkpoint:
     failures: dict = dataclasses.field(default_factory=dict)
     n_evaluations: int = 0
     elapsed_s: float = 0.0
+    proposal: GaussianMixture | None = None
+    pilot: dict = dataclasses.field(default_factory=dict)
 
     @property
     def n_steps(self) -> int:
@@ -100,6 +106,10 @@ def write_checkpoint(path: str | os.PathLike, ckpt: Checkpoint) -> Path:
         f.attrs["failures"] = json.dumps(dict(ckpt.failures))
         f.attrs["n_evaluations"] = int(ckpt.n_evaluations)
         f.attrs["elapsed_s"] = float(ckpt.elapsed_s)
+        f.attrs["pilot"] = json.dumps(dict(ckpt.pilot))
+        if ckpt.proposal is not None:
+            for key in ("weights", "means", "covariances"):
+                f.create_dataset(f"proposal/{key}", data=getattr(ckpt.proposal, key))
         f.flush()
     fd = os.open(tmp, os.O_RDONLY)
     try:
@@ -121,6 +131,9 @@ def read_checkpoint(path: str | os.PathLike) -> Checkpoint:
             if f.attrs.get("format") != FORMAT_NAME:
                 raise InputFileError(f"{path}: not a retrieve chain file (format attribute missing)")
             keys = f["rng/keys"][()]
+            proposal = None
+            if "proposal" in f:
+                proposal = GaussianMixture(*(f[f"proposal/{k}"][()] for k in ("weights", "means", "covariances")))
             rs = (str(f.attrs["rng_name"]), keys, int(f.attrs["rng_pos"]),
                   int(f.attrs["rng_has_gauss"]), float(f.attrs["rng_cached_gaussian"]))
             return Checkpoint(
@@ -129,7 +142,8 @@ def read_checkpoint(path: str | os.PathLike) -> Checkpoint:
                 random_state=rs, tau_history=f["tau_history"][()],
                 config_digest=str(f.attrs["config_digest"]), seed=int(f.attrs["seed"]),
                 converged=bool(f.attrs["converged"]), failures=json.loads(f.attrs["failures"]),
-                n_evaluations=int(f.attrs["n_evaluations"]), elapsed_s=float(f.attrs["elapsed_s"]))
+                n_evaluations=int(f.attrs["n_evaluations"]), elapsed_s=float(f.attrs["elapsed_s"]),
+                proposal=proposal, pilot=json.loads(f.attrs.get("pilot", "{}")))
     except (OSError, KeyError) as exc:
         raise InputFileError(f"{path}: unreadable chain file ({exc}); start again with --overwrite") from None
 

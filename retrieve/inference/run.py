@@ -430,6 +430,9 @@ def _finish(config, post, object_data, res, out, manifest, t_start, workers) -> 
         },
         "map_parameters": map_params,
         "map_log_prob": float(ck.log_prob[i_map]),
+        # the nested-sampling pilot that placed the walkers (empty without one); its ln Z is a
+        # loose by-product, not an evidence for model comparison
+        "pilot": dict(res.pilot),
     })
     rundir.write_json(out / rundir.MANIFEST, manifest)
     if res.failures:

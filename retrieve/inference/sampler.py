@@ -17,7 +17,12 @@ Steps
    support are redrawn.  Fallback (a non-finite Hessian, or ``ball =
    "fixed"``): a ball of width ``ball_scale`` × prior width.  Walkers with
    ln p = −∞ are redrawn.
-3. :class:`emcee.EnsembleSampler` (stretch move, Goodman & Weare 2010) run in
+   With ``pilot = "nested"`` steps 1–2 are replaced by a nested-sampling
+   pilot run (:mod:`retrieve.inference.pilot`): the walkers start on
+   distinct points of its equal-weight posterior sample, and a Gaussian
+   mixture fitted to that sample (:mod:`retrieve.inference.mixture`) is
+   frozen as the independence proposal of ``moves = "pilot-mixture"``.
+3. :class:`emcee.EnsembleSampler` (moves of :mod:`retrieve.inference.moves`) run in
    chunks of ``check_every`` steps.  After each chunk: τ estimate (after the
    start-up discard of :func:`~retrieve.inference.convergence.tau_discard`),
    convergence test (:mod:`retrieve.inference.convergence`) and an atomic
@@ -50,6 +55,9 @@ from scipy import optimize
 from ..errors import UserError
 from .checkpoint import Checkpoint, read_checkpoint, remove_stale_temporaries, write_checkpoint
 from .convergence import ConvergenceRule, autocorr_time, tau_discard
+from .mixture import defensive, fit_mixture
+from .moves import MOVES, NEEDS_MIXTURE, make_moves  # noqa: F401  (MOVES: re-exported for the config)
+from .pilot import distinct_start, run_pilot
 
 # ln p substituted for -inf inside the optimiser (differential evolution needs finite values)
 _WORST = 1e300
@@ -79,6 +87,10 @@ class SamplerSettings:
     predictive_draws: int = 200
     progress: bool = True
     moves: str = "stretch"
+    pilot: str = "none"
+    pilot_live_points: int = 200
+    pilot_dlogz: float = 1.0
+    mixture_components: int = 16
 
     def n_walkers(self, ndim: int) -> int:
         """Walker count: ``walkers`` or, when 0, the smallest even number ≥ 2·ndim + 2."""
@@ -86,21 +98,6 @@ class SamplerSettings:
             return int(self.walkers)
         n = 2 * ndim + 2
         return n + (n % 2)
-
-
-#: ``[sampler] moves``: emcee proposal mixtures.  "stretch": the affine-invariant stretch move
-#: (Goodman & Weare 2010); "differential-evolution": 80 % DEMove (ter Braak 2006) + 20 % DESnookerMove
-#: (ter Braak & Vrugt 2008), the mixture suggested in the emcee documentation ("Using different moves").
-MOVES = ("stretch", "differential-evolution")
-
-
-def make_moves(name: str):
-    """The emcee ``moves`` argument for ``[sampler] moves``."""
-    if name == "stretch":
-        return None
-    if name == "differential-evolution":
-        return [(emcee.moves.DEMove(), 0.8), (emcee.moves.DESnookerMove(), 0.2)]
-    raise ValueError(f"unknown moves {name!r}")
 
 
 class SamplerInterrupted(UserError):
@@ -360,6 +357,7 @@ class SamplerResult:
     elapsed_s: float
     sampling_s: float
     resumed_from: int = 0
+    pilot: dict = dataclasses.field(default_factory=dict)
 
 
 def _seeds(seed: int) -> tuple[int, np.random.Generator, int]:
@@ -370,10 +368,51 @@ def _seeds(seed: int) -> tuple[int, np.random.Generator, int]:
             int(c.generate_state(1)[0]))
 
 
-def start_state(posterior, settings: SamplerSettings, evaluator: EvaluationMap):
+@dataclasses.dataclass
+class StartState:
+    """Initial positions, their ln p, emcee's generator state and what the start stage produced."""
+
+    positions: np.ndarray
+    log_prob: np.ndarray
+    random_state: tuple
+    proposal: object = None          # GaussianMixture for the "pilot-mixture" moves
+    pilot: dict = dataclasses.field(default_factory=dict)
+
+
+def _pilot_start(posterior, settings: SamplerSettings, evaluator: EvaluationMap, seed: int,
+                 rng: np.random.Generator, n_walkers: int):
+    """Walkers on distinct pilot samples, and the proposal mixture fitted to the pilot sample."""
+    pool = evaluator._pool
+    pilot = run_pilot(posterior, settings.pilot_live_points, settings.pilot_dlogz, seed, pool=pool)
+    evaluator.n_evaluations += pilot.n_calls
+    pos = distinct_start(pilot.samples, n_walkers, rng)
+    lp = evaluator.evaluate(pos)
+    bad = np.flatnonzero(~np.isfinite(lp))
+    if bad.size:       # pilot points where the model failed (dynesty saw a floor value): redraw
+        pos[bad] = distinct_start(pilot.samples, bad.size, rng)
+        lp[bad] = evaluator.evaluate(pos[bad])
+        if not np.all(np.isfinite(lp)):
+            raise UserError("the nested-sampling pilot found too few points with a finite posterior; "
+                            "check the model or raise pilot_live_points")
+    proposal = None
+    if settings.moves in NEEDS_MIXTURE:
+        counts = tuple(k for k in (1, 2, 4, 8, 12, 16, 24, 32) if k <= max(1, settings.mixture_components))
+        mix = fit_mixture(pilot.samples, rng, components=counts)
+        proposal = defensive(mix, pilot.samples)
+    summary = pilot.summary()
+    if proposal is not None:
+        summary["mixture_components"] = proposal.n_components - 1
+    return pos, lp, proposal, summary
+
+
+def start_state(posterior, settings: SamplerSettings, evaluator: EvaluationMap) -> StartState:
     """Initial positions, their ln p and emcee's initial generator state."""
     de_seed, rng, emcee_seed = _seeds(settings.seed)
     n_walkers = settings.n_walkers(posterior.ndim)
+    random_state = np.random.RandomState(emcee_seed).get_state()
+    if settings.pilot == "nested":
+        pos, lp, proposal, pilot = _pilot_start(posterior, settings, evaluator, de_seed, rng, n_walkers)
+        return StartState(pos, lp, random_state, proposal, pilot)
     if settings.optimiser == "none":
         pos, lp = prior_draws(posterior.priors, n_walkers, rng, evaluator)
     else:
@@ -383,7 +422,7 @@ def start_state(posterior, settings: SamplerSettings, evaluator: EvaluationMap):
             cov = laplace_covariance(evaluator, best, prior_bounds(posterior.priors))
         pos, lp = initial_ball(best, posterior.priors, n_walkers, settings.ball_scale, rng, evaluator,
                                covariance=cov)
-    return pos, lp, np.random.RandomState(emcee_seed).get_state()
+    return StartState(pos, lp, random_state)
 
 
 def run_sampler(posterior, settings: SamplerSettings, checkpoint_path, workers: int = 1,
@@ -421,6 +460,7 @@ def run_sampler(posterior, settings: SamplerSettings, checkpoint_path, workers: 
             evaluator.failures.update(ck.failures)
             evaluator.n_evaluations = ck.n_evaluations
             pos, lp, rstate = ck.chain[-1], ck.log_prob[-1], ck.random_state
+            proposal, pilot = ck.proposal, ck.pilot
             chains, lps = [ck.chain], [ck.log_prob]
             accepted = ck.accepted.astype(np.int64)
             history = [row for row in ck.tau_history]
@@ -428,14 +468,16 @@ def run_sampler(posterior, settings: SamplerSettings, checkpoint_path, workers: 
             n_done = ck.n_steps
             converged = ck.converged
         else:
-            pos, lp, rstate = start_state(posterior, settings, evaluator)
+            start = start_state(posterior, settings, evaluator)
+            pos, lp, rstate = start.positions, start.log_prob, start.random_state
+            proposal, pilot = start.proposal, start.pilot
             chains, lps, history = [], [], []
             accepted = np.zeros(len(pos), dtype=np.int64)
             elapsed_before, n_done, converged = 0.0, 0, False
         resumed_from = n_done
         n_walkers, ndim = pos.shape
         sampler = emcee.EnsembleSampler(n_walkers, ndim, posterior, pool=evaluator,
-                                        moves=make_moves(settings.moves))
+                                        moves=make_moves(settings.moves, proposal))
         t_sampling = time.perf_counter()
         bar = _progress_bar(show, settings.max_steps, n_done)
         tau = history[-1][1:] if history else np.full(ndim, np.nan)
@@ -462,7 +504,7 @@ def run_sampler(posterior, settings: SamplerSettings, checkpoint_path, workers: 
                 ck = Checkpoint(posterior.param_names, chain, lps[0], accepted, rstate, np.array(history),
                                 config_digest, settings.seed, converged, dict(evaluator.failures),
                                 evaluator.n_evaluations,
-                                elapsed_before + time.perf_counter() - t0)
+                                elapsed_before + time.perf_counter() - t0, proposal, pilot)
                 write_checkpoint(checkpoint_path, ck)
                 if bar is not None:
                     bar.set_postfix(acc=f"{np.mean(accepted) / n_done:.2f}",
@@ -481,7 +523,7 @@ def run_sampler(posterior, settings: SamplerSettings, checkpoint_path, workers: 
             checkpoint=ck, converged=bool(converged), tau=np.asarray(tau, dtype=float),
             acceptance_fraction=accepted / max(n_done, 1), n_evaluations=evaluator.n_evaluations,
             failures=Counter(evaluator.failures), elapsed_s=elapsed_before + time.perf_counter() - t0,
-            sampling_s=time.perf_counter() - t_sampling, resumed_from=resumed_from)
+            sampling_s=time.perf_counter() - t_sampling, resumed_from=resumed_from, pilot=dict(pilot))
 
 
 def _progress_bar(show: bool, total: int, initial: int):

@@ -1,0 +1,172 @@
+"""Nested-sampling pilot, Gaussian-mixture proposals and the pilot-mixture moves."""
+import emcee
+import numpy as np
+import pytest
+from scipy import stats
+
+from retrieve.inference import fit, parse_config
+from retrieve.inference.checkpoint import read_checkpoint
+from retrieve.inference.convergence import autocorr_time
+from retrieve.inference.mixture import GaussianMixture, defensive, fit_mixture
+from retrieve.inference.moves import MixtureIndependenceMove
+from retrieve.inference.toymodel import LinearModelFactory
+from retrieve.observations import Dataset
+from retrieve.observations.writers import write_dataset
+
+N_COEF = 3
+ALPHA = 0.25          # prior precision: coef_k ~ N(0, 2²)
+SIGMA = 0.2
+X = np.linspace(1.0, 2.0, 25)
+
+
+@pytest.fixture(scope="module")
+def linear_data(tmp_path_factory):
+    rng = np.random.default_rng(11)
+    y = 0.5 + 1.0 * (X - 1) - 0.8 * (X - 1) ** 2 + rng.normal(0, SIGMA, X.size)
+    path = tmp_path_factory.mktemp("pilot") / "lin.ecsv"
+    write_dataset(Dataset("ifs", "spectrum", X, y, np.full(X.size, SIGMA)), path)
+    return path, y
+
+
+def _config(path, **sampler):
+    s = {"max_steps": 3000, "check_every": 50, "seed": 1, "progress": False, "pilot": "nested",
+         "moves": "pilot-mixture", "pilot_live_points": 100, **sampler}
+    sd = float(1 / np.sqrt(ALPHA))
+    return parse_config({
+        "parameters": {f"coef_{k}": {"prior": "gaussian", "mean": 0.0, "sigma": sd} for k in range(N_COEF)},
+        "datasets": [{"name": "ifs", "file": str(path)}], "sampler": s})
+
+
+def _analytic(y):
+    """Posterior mean, covariance and ln evidence of the linear-Gaussian model.
+
+    Bishop (2006) PRML eqs. 3.53–3.54 (posterior) and 3.86 (log evidence).
+    """
+    phi = np.vander(X - 1.0, N_COEF, increasing=True)
+    beta = 1 / SIGMA ** 2
+    a = ALPHA * np.eye(N_COEF) + beta * phi.T @ phi
+    s_n = np.linalg.inv(a)
+    m_n = beta * s_n @ phi.T @ y
+    e_m = 0.5 * beta * np.sum((y - phi @ m_n) ** 2) + 0.5 * ALPHA * m_n @ m_n
+    ln_z = (0.5 * N_COEF * np.log(ALPHA) + 0.5 * X.size * np.log(beta) - e_m
+            - 0.5 * np.linalg.slogdet(a)[1] - 0.5 * X.size * np.log(2 * np.pi))
+    return m_n, s_n, ln_z
+
+
+# --------------------------------------------------------------------------- mixtures
+def test_mixture_density_matches_scipy():
+    mix = GaussianMixture([0.3, 0.7], [[0.0, 1.0], [2.0, -1.0]],
+                          [[[1.0, 0.3], [0.3, 0.5]], [[0.2, 0.0], [0.0, 2.0]]])
+    x = np.random.default_rng(0).normal(size=(50, 2)) * 2
+    # reference: scipy.stats.multivariate_normal
+    ref = np.log(0.3 * stats.multivariate_normal(mix.means[0], mix.covariances[0]).pdf(x)
+                 + 0.7 * stats.multivariate_normal(mix.means[1], mix.covariances[1]).pdf(x))
+    np.testing.assert_allclose(mix.log_pdf(x), ref, rtol=1e-12, atol=0)
+
+
+def test_mixture_draws_have_the_mixture_moments():
+    mix = GaussianMixture([0.25, 0.75], [[-2.0, 0.0], [1.0, 3.0]], [np.eye(2) * 0.5, [[1.0, 0.6], [0.6, 1.0]]])
+    x = mix.sample(200000, np.random.RandomState(3))
+    mean = mix.weights @ mix.means                     # law of total expectation (textbook)
+    np.testing.assert_allclose(x.mean(0), mean, rtol=0, atol=0.01)
+    second = sum(w * (c + np.outer(m, m)) for w, m, c in zip(mix.weights, mix.means, mix.covariances))
+    np.testing.assert_allclose(np.cov(x.T), second - np.outer(mean, mean), rtol=0, atol=0.03)
+
+
+def test_em_recovers_a_two_component_mixture_and_bic_picks_two():
+    truth = GaussianMixture([0.4, 0.6], [[-3.0, 0.0, 1.0], [2.0, 1.0, -1.0]],
+                            [np.diag([0.5, 1.0, 0.3]), [[1.0, 0.5, 0.0], [0.5, 1.0, 0.0], [0.0, 0.0, 0.2]]])
+    x = truth.sample(6000, np.random.default_rng(4))
+    mix = fit_mixture(x, np.random.default_rng(5), components=(1, 2, 4))
+    assert mix.n_components == 2
+    order = np.argsort(mix.means[:, 0])
+    np.testing.assert_allclose(mix.weights[order], truth.weights, rtol=0, atol=0.02)
+    np.testing.assert_allclose(mix.means[order], truth.means, rtol=0, atol=0.06)
+    np.testing.assert_allclose(mix.covariances[order], truth.covariances, rtol=0, atol=0.1)
+
+
+def test_repeated_points_do_not_pass_for_information():
+    """An equal-weight resample repeats points; the BIC must see the distinct ones, not the repeats."""
+    rng = np.random.default_rng(6)
+    base = rng.normal(size=(300, 3))
+    resample = base[rng.integers(0, 300, size=30000)]
+    assert fit_mixture(resample, np.random.default_rng(7), components=(1, 2, 4, 8)).n_components == 1
+
+
+def test_defensive_mixture_is_wider_and_keeps_a_broad_component():
+    x = np.random.default_rng(8).normal(size=(2000, 2))
+    mix = fit_mixture(x, np.random.default_rng(9), components=(1,))
+    d = defensive(mix, x, inflate=1.5, broad_weight=0.1, broad_scale=3.0)
+    assert d.n_components == 2 and d.weights[-1] == pytest.approx(0.1, rel=1e-12, abs=0)
+    np.testing.assert_allclose(d.covariances[0], 2.25 * mix.covariances[0], rtol=1e-12, atol=0)
+    np.testing.assert_allclose(d.covariances[1], 9.0 * np.cov(x.T), rtol=1e-6, atol=0)
+
+
+# --------------------------------------------------------------------------- the move
+def test_independence_move_samples_the_target_despite_a_poor_proposal():
+    """Metropolis–Hastings with an independence proposal leaves the target invariant (Tierney 1994, §2.3.3)."""
+    mean = np.array([1.0, -2.0])
+    cov = np.array([[1.0, 0.8], [0.8, 2.0]])
+    target = stats.multivariate_normal(mean, cov)
+    proposal = GaussianMixture([1.0], [[0.5, -1.0]], [np.eye(2) * 4.0])     # offset and too wide
+    sampler = emcee.EnsembleSampler(16, 2, target.logpdf, moves=MixtureIndependenceMove(proposal))
+    sampler.random_state = np.random.RandomState(10).get_state()
+    sampler.run_mcmc(np.random.default_rng(11).normal(size=(16, 2)), 6000, progress=False)
+    chain = sampler.get_chain(discard=500)
+    tau = float(np.max(autocorr_time(chain)))
+    flat = chain.reshape(-1, 2)
+    n_eff = flat.shape[0] / tau
+    assert 0.05 < np.mean(sampler.acceptance_fraction) < 0.6
+    assert np.all(np.abs(flat.mean(0) - mean) < 5 * np.sqrt(np.diag(cov) / n_eff))
+    np.testing.assert_allclose(flat.var(0), np.diag(cov), rtol=5 * np.sqrt(2 / n_eff), atol=0)
+
+
+# --------------------------------------------------------------------------- the engine
+def test_pilot_mixture_fit_recovers_the_analytic_posterior(linear_data, tmp_path):
+    path, y = linear_data
+    res = fit(_config(path), out_dir=tmp_path / "run", model_factory=LinearModelFactory(N_COEF))
+    m_n, s_n, ln_z = _analytic(y)
+    assert res.converged
+    samples = np.column_stack([res.samples[f"coef_{k}"] for k in range(N_COEF)])
+    n_used = (res.n_steps - res.burn_in) * res.n_walkers
+    n_eff = n_used / np.max(res.tau)
+    assert np.all(np.abs(samples.mean(0) - m_n) < 4 * np.sqrt(np.diag(s_n) / n_eff))
+    np.testing.assert_allclose(samples.var(0), np.diag(s_n), rtol=4 * np.sqrt(2 / n_eff), atol=0)
+    # the pilot's loose evidence is still an evidence: Bishop (2006) eq. 3.86
+    from retrieve.inference import load_run
+    pilot = load_run(tmp_path / "run", model_factory=LinearModelFactory(N_COEF)).manifest["pilot"]
+    assert abs(pilot["ln_z"] - ln_z) < 3 * pilot["ln_z_err"] + 0.2
+    assert pilot["likelihood_calls"] > 0 and pilot["mixture_components"] >= 1
+    assert np.max(res.tau) < 10            # independence draws from a good mixture decorrelate fast
+
+
+def test_pilot_runs_are_reproducible_and_independent_of_workers(linear_data, tmp_path):
+    path, _ = linear_data
+    factory = LinearModelFactory(N_COEF)
+    cfg = _config(path, max_steps=200, check_every=100)
+    chains = []
+    for name, workers in (("a", 1), ("b", 1), ("c", 2)):
+        fit(cfg, out_dir=tmp_path / name, model_factory=factory, workers=workers)
+        chains.append(read_checkpoint(tmp_path / name / "chain.h5").chain)
+    assert np.array_equal(chains[0], chains[1])
+    assert np.array_equal(chains[0], chains[2])
+    other = _config(path, max_steps=200, check_every=100, seed=2)
+    fit(other, out_dir=tmp_path / "d", model_factory=factory)
+    assert not np.array_equal(chains[0], read_checkpoint(tmp_path / "d" / "chain.h5").chain)
+
+
+def test_resume_reuses_the_frozen_mixture(linear_data, tmp_path):
+    path, _ = linear_data
+    factory = LinearModelFactory(N_COEF)
+    fit(_config(path, max_steps=300, check_every=100, tau_factor=1e9), out_dir=tmp_path / "full",
+        model_factory=factory)
+    fit(_config(path, max_steps=100, check_every=100, tau_factor=1e9), out_dir=tmp_path / "part",
+        model_factory=factory)
+    res = fit(_config(path, max_steps=300, check_every=100, tau_factor=1e9), out_dir=tmp_path / "part",
+              resume=True, model_factory=factory)
+    assert res.n_steps == 300
+    full = read_checkpoint(tmp_path / "full" / "chain.h5")
+    part = read_checkpoint(tmp_path / "part" / "chain.h5")
+    assert np.array_equal(full.chain, part.chain)
+    np.testing.assert_array_equal(full.proposal.means, part.proposal.means)
+    assert part.pilot["likelihood_calls"] == full.pilot["likelihood_calls"]
