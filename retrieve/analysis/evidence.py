@@ -502,7 +502,7 @@ def nested_sampling_evidence(log_likelihood: Callable, prior_transform: Callable
     try:
         import dynesty
     except ImportError:
-        raise UserError("nested-sampling cross-check needs dynesty: pip install 'retrieve-atmo[nested]'") from None
+        raise UserError("nested sampling needs dynesty (a dependency of retrieve-atmo): pip install dynesty") from None
     sampler = dynesty.NestedSampler(log_likelihood, prior_transform, ndim, nlive=nlive, sample=sample,
                                     rstate=np.random.default_rng(seed))
     sampler.run_nested(dlogz=dlogz, print_progress=False)
