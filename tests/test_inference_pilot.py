@@ -170,3 +170,99 @@ def test_resume_reuses_the_frozen_mixture(linear_data, tmp_path):
     assert np.array_equal(full.chain, part.chain)
     np.testing.assert_array_equal(full.proposal.means, part.proposal.means)
     assert part.pilot["likelihood_calls"] == full.pilot["likelihood_calls"]
+
+
+class _SquareModel:
+    """m(λ) = c0² + c1 (λ − 1): c0 and −c0 predict the same spectrum, so the posterior has two mirror modes."""
+
+    parameter_names = ["coef_0", "coef_1"]
+
+    def __init__(self, datasets):
+        self.x = {d.name: np.asarray(d.wavelength_um, float) - 1.0 for d in datasets}
+
+    def evaluate(self, params):
+        from types import SimpleNamespace
+        c0, c1 = params["coef_0"], params["coef_1"]
+        return SimpleNamespace(per_dataset={k: c0 ** 2 + c1 * x for k, x in self.x.items()})
+
+
+class _SquareFactory:
+    def __call__(self, object_data):
+        return _SquareModel(object_data.datasets)
+
+
+def test_pilot_mixture_visits_both_mirror_modes_with_equal_weight(tmp_path):
+    """Two modes 4 prior-σ apart with a valley of Δln p ≈ 10⁴: the mixture moves jump between them.
+
+    By symmetry each mode holds exactly half of the posterior mass (no
+    external reference needed); the walkers' time in the c0 > 0 mode must
+    match 1/2 within the binomial error of the effective sample size.
+    """
+    rng = np.random.default_rng(12)
+    y = 4.0 + 0.5 * (X - 1) + rng.normal(0, SIGMA, X.size)        # c0 = ±2, c1 = 0.5
+    path = tmp_path / "sq.ecsv"
+    write_dataset(Dataset("ifs", "spectrum", X, y, np.full(X.size, SIGMA)), path)
+    cfg = parse_config({
+        "parameters": {"coef_0": {"prior": "uniform", "low": -4.0, "high": 4.0},
+                       "coef_1": {"prior": "uniform", "low": -4.0, "high": 4.0}},
+        "datasets": [{"name": "ifs", "file": str(path)}],
+        "sampler": {"max_steps": 4000, "check_every": 50, "seed": 3, "progress": False, "pilot": "nested",
+                    "moves": "pilot-mixture", "pilot_live_points": 100}})
+    res = fit(cfg, out_dir=tmp_path / "run", model_factory=_SquareFactory())
+    c0 = np.asarray(res.samples["coef_0"])
+    assert res.converged
+    frac = np.mean(c0 > 0)
+    n_eff = (res.n_steps - res.burn_in) * res.n_walkers / np.max(res.tau)
+    assert abs(frac - 0.5) < 4 * np.sqrt(0.25 / n_eff)
+    assert np.all(np.abs(np.abs(c0) - 2.0) < 0.2)                  # nothing in the valley
+
+
+class _Interrupt(Exception):
+    pass
+
+
+class _DiesAfter:
+    """Wraps a posterior; raises after ``n`` evaluations (a kill during the pilot)."""
+
+    def __init__(self, post, n):
+        self.post, self.n, self.count = post, n, 0
+
+    def __getattr__(self, name):
+        return getattr(self.post, name)
+
+    def evaluate(self, theta):
+        self.count += 1
+        if self.count > self.n:
+            raise _Interrupt()
+        return self.post.evaluate(theta)
+
+
+def test_interrupted_pilot_continues_from_its_saved_state(linear_data, tmp_path, monkeypatch):
+    from retrieve.inference import pilot as pilot_module
+    from retrieve.inference.run import build_posterior, read_datasets
+    path, _ = linear_data
+    cfg = _config(path)
+    post, _ = build_posterior(cfg, read_datasets(cfg), LinearModelFactory(N_COEF))
+    whole = pilot_module.run_pilot(post, 50, 1.0, seed=3)
+    monkeypatch.setattr(pilot_module, "CHECKPOINT_EVERY_S", 0.0)      # save after every iteration
+    state = tmp_path / "pilot-state.pkl"
+    with pytest.raises(_Interrupt):
+        pilot_module.run_pilot(_DiesAfter(post, 1500), 50, 1.0, seed=3, state_file=state)
+    assert state.is_file()
+    again = pilot_module.run_pilot(post, 50, 1.0, seed=3, state_file=state, resume=True)
+    assert again.n_calls == whole.n_calls
+    assert np.array_equal(again.samples, whole.samples)
+
+
+def test_resume_before_the_first_chain_checkpoint_repeats_the_start(linear_data, tmp_path):
+    path, _ = linear_data
+    factory = LinearModelFactory(N_COEF)
+    cfg = _config(path, max_steps=100, check_every=50)
+    fit(cfg, out_dir=tmp_path / "full", model_factory=factory)
+    fit(cfg, out_dir=tmp_path / "part", model_factory=factory)
+    (tmp_path / "part" / "chain.h5").unlink()           # as if killed before the first checkpoint
+    with pytest.warns(RuntimeWarning, match="no chain checkpoint yet; repeating the start stage"):
+        fit(cfg, out_dir=tmp_path / "part", resume=True, model_factory=factory)
+    assert np.array_equal(read_checkpoint(tmp_path / "full" / "chain.h5").chain,
+                          read_checkpoint(tmp_path / "part" / "chain.h5").chain)
+    assert not (tmp_path / "part" / "pilot-state.pkl").exists()

@@ -117,7 +117,8 @@ def _em(x: np.ndarray, w: np.ndarray, k: int, rng: np.random.Generator, max_iter
 
 
 def fit_mixture(samples: np.ndarray, rng: np.random.Generator, components=(1, 2, 3, 4, 6, 8),
-                max_iter: int = 300, tol: float = 1e-8, reg: float = 1e-4) -> GaussianMixture:
+                max_iter: int = 300, tol: float = 1e-8, reg: float = 1e-4,
+                points_per_parameter: float = 1.0) -> GaussianMixture:
     """Mixture fitted to equal-weight ``samples`` (n, d), the component count chosen by BIC.
 
     Repeated rows (an equal-weight resample repeats points) are merged into
@@ -125,8 +126,9 @@ def fit_mixture(samples: np.ndarray, rng: np.random.Generator, components=(1, 2,
     effective sample size (Σw)²/Σw² of those weights (Kish 1965), so that
     repeats do not pass for information.  ``reg`` is added to every
     covariance diagonal in standardised units (a floor on the width of each
-    component, in units of the sample variance).  Counts needing more than
-    n_eff / 10 points per parameter are skipped.
+    component, in units of the sample variance).  Counts with fewer than
+    ``points_per_parameter`` effective points per free mixture parameter are
+    skipped.
     """
     x_all = np.asarray(samples, float)
     x, counts = np.unique(x_all, axis=0, return_counts=True)
@@ -140,7 +142,7 @@ def fit_mixture(samples: np.ndarray, rng: np.random.Generator, components=(1, 2,
     per_component = d + d * (d + 1) / 2 + 1
     best, best_bic = None, np.inf
     for k in components:
-        if k > 1 and n_eff < 10 * k * per_component:
+        if k > 1 and n_eff < points_per_parameter * k * per_component:
             continue
         mix, mean_loglike = _em(z, w, k, rng, max_iter, tol, reg)
         bic = -2.0 * n_eff * mean_loglike + (k * per_component - 1) * np.log(n_eff)

@@ -20,6 +20,8 @@ from __future__ import annotations
 
 import dataclasses
 import math
+import os
+import warnings
 
 import numpy as np
 
@@ -34,22 +36,21 @@ def log_likelihood_of(posterior, theta) -> float:
     return lp - posterior.log_prior(theta)
 
 
-class _LogLikelihood:
-    """Picklable ln L: uses the posterior built once per pool worker, or the one given."""
+# the posterior of a serial pilot (pool workers hold their own, see sampler.EvaluationMap)
+_LOCAL_POSTERIOR = None
 
-    def __init__(self, posterior=None):
-        self.posterior = posterior
+
+class _LogLikelihood:
+    """Picklable ln L that carries no posterior: it uses the worker's, or the serial run's.
+
+    Holding no state keeps dynesty's per-task pickles and its saved state
+    small, and a restored pilot needs nothing re-attached.
+    """
 
     def __call__(self, theta):
-        if self.posterior is not None:
-            post = self.posterior
-        else:                    # inside a pool worker started by sampler.EvaluationMap
-            from . import sampler
-            post = sampler._WORKER_POSTERIOR
+        from . import sampler
+        post = sampler._WORKER_POSTERIOR if sampler._WORKER_POSTERIOR is not None else _LOCAL_POSTERIOR
         return log_likelihood_of(post, np.asarray(theta, dtype=float))
-
-    def __getstate__(self):      # never ship the posterior to a worker: it has its own
-        return {"posterior": None}
 
 
 class PriorTransform:
@@ -80,15 +81,36 @@ class PilotResult:
 class _SerialMap:
     """A pool stand-in evaluating in this process (dynesty asks for ``map``)."""
 
-    map = staticmethod(lambda func, items: list(map(func, items)))
+    def map(self, func, items):
+        return [func(x) for x in items]
 
 
 #: points dynesty proposes at a time (one per worker with up to this many workers)
 QUEUE_SIZE = 4
+#: seconds between saves of the pilot's state (``state_file``)
+CHECKPOINT_EVERY_S = 30.0
+
+
+class _PilotProgress:
+    """dynesty ``print_func`` feeding our own progress bar: iterations, calls and remaining Δ ln Z."""
+
+    def __init__(self, dlogz: float):
+        from tqdm.auto import tqdm
+        self.bar = tqdm(desc="pilot (nested sampling)", unit="it", dynamic_ncols=True)
+        self.dlogz = dlogz
+
+    def __call__(self, results, niter, ncall, dlogz=None, **_):
+        self.bar.update(max(0, niter - self.bar.n))
+        remaining = getattr(results, "delta_logz", float("nan"))
+        self.bar.set_postfix(calls=ncall, remaining_dlnz=f"{remaining:.2f}>{self.dlogz:g}", refresh=False)
+
+    def close(self):
+        self.bar.close()
 
 
 def run_pilot(posterior, live_points: int, dlogz: float, seed: int, pool=None,
-              n_resample: int = 20000) -> PilotResult:
+              n_resample: int = 20000, progress: bool = False, state_file=None,
+              resume: bool = False) -> PilotResult:
     """Run the nested-sampling pilot and resample its dead points to equal weight.
 
     Parameters
@@ -105,23 +127,49 @@ def run_pilot(posterior, live_points: int, dlogz: float, seed: int, pool=None,
         does not depend on the pool.
     n_resample : int
         Size of the equal-weight resample.
+    progress : bool
+        Show a progress bar (iterations, likelihood calls, remaining Δ ln Z).
+    state_file : path, optional
+        dynesty saves its state here every :data:`CHECKPOINT_EVERY_S` seconds
+        (written to a temporary name and renamed).
+    resume : bool
+        Continue from ``state_file`` when it exists; the pilot then ends as
+        the uninterrupted one would.
     """
     import dynesty
 
-    rng = np.random.default_rng(seed)
-    loglike = _LogLikelihood(None if pool is not None else posterior)
-    # the same queue with or without workers: dynesty's proposals, hence the pilot, do not
-    # depend on the worker count (a serial run maps in this process)
-    sampler = dynesty.NestedSampler(loglike, PriorTransform(posterior.priors), posterior.ndim,
-                                    nlive=int(live_points), sample="rwalk", bound="multi",
-                                    rstate=rng, pool=pool if pool is not None else _SerialMap(),
-                                    queue_size=QUEUE_SIZE)
-    with np.errstate(all="ignore"):
-        sampler.run_nested(dlogz=float(dlogz), print_progress=False)
+    global _LOCAL_POSTERIOR
+    mapper = pool if pool is not None else _SerialMap()
+    state = str(state_file) if state_file is not None else None
+    restored = bool(resume and state and os.path.isfile(state))
+    bar = None
+    _LOCAL_POSTERIOR = posterior        # dynesty evaluates the first live points while it is built
+    try:
+        if restored:
+            with warnings.catch_warnings():      # dynesty notes that it keeps the saved queue size
+                warnings.simplefilter("ignore")
+                sampler = dynesty.NestedSampler.restore(state, pool=mapper)
+        else:
+            # the same queue with or without workers: dynesty's proposals, hence the pilot, do not
+            # depend on the worker count (a serial run maps in this process)
+            sampler = dynesty.NestedSampler(_LogLikelihood(), PriorTransform(posterior.priors), posterior.ndim,
+                                            nlive=int(live_points), sample="rwalk", bound="multi",
+                                            rstate=np.random.default_rng(seed), pool=mapper,
+                                            queue_size=QUEUE_SIZE)
+        bar = _PilotProgress(float(dlogz)) if progress else None
+        with np.errstate(all="ignore"), warnings.catch_warnings():
+            warnings.filterwarnings("ignore", message=".*resuming a finished static run.*")
+            sampler.run_nested(dlogz=float(dlogz), print_progress=bar is not None, print_func=bar,
+                               checkpoint_file=state, checkpoint_every=CHECKPOINT_EVERY_S, resume=restored)
+    finally:
+        _LOCAL_POSTERIOR = None
+        if bar is not None:
+            bar.close()
     res = sampler.results
     weights = np.exp(res.logwt - res.logz[-1])
     weights /= weights.sum()
-    idx = rng.choice(len(weights), size=int(n_resample), p=weights)
+    # a generator of its own (not dynesty's): a restored pilot resamples exactly as an uninterrupted one
+    idx = np.random.default_rng([int(seed), 1]).choice(len(weights), size=int(n_resample), p=weights)
     samples = np.asarray(res.samples, dtype=float)[idx]
     return PilotResult(samples=samples, ln_z=float(res.logz[-1]), ln_z_err=float(res.logzerr[-1]),
                        n_calls=int(np.sum(res.ncall)), n_unique=int(np.unique(idx).size))

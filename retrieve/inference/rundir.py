@@ -46,18 +46,22 @@ PACKAGES = ("retrieve-atmo", "numpy", "scipy", "astropy", "emcee", "h5py", "tqdm
 
 
 def prepare_run_dir(out_dir, overwrite: bool = False, resume: bool = False) -> Path:
-    """Create (or, with ``overwrite``, empty) a run folder; with ``resume`` it must hold a checkpoint.
+    """Create (or, with ``overwrite``, empty) a run folder; with ``resume`` it must be a started run.
+
+    A run killed before its first chain checkpoint (during the optimiser or
+    the pilot) has a manifest but no chain; ``resume`` accepts it and the
+    sampler repeats the start stage (a saved pilot continues).
 
     Raises
     ------
     UserError
         The folder exists and holds files but neither ``overwrite`` nor
         ``resume`` was given; ``overwrite`` on a folder that is not a run folder;
-        ``resume`` without a checkpoint.
+        ``resume`` of a folder holding neither a checkpoint nor a manifest.
     """
     out = Path(out_dir)
     if resume:
-        if not (out / CHAIN).is_file():
+        if not (out / CHAIN).is_file() and not (out / MANIFEST).is_file():
             raise UserError(f"{out}: no {CHAIN} to resume from; start the run without --resume")
         return out
     if out.exists() and not out.is_dir():

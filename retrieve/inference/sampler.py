@@ -59,6 +59,9 @@ from .mixture import defensive, fit_mixture
 from .moves import MOVES, NEEDS_MIXTURE, make_moves  # noqa: F401  (MOVES: re-exported for the config)
 from .pilot import distinct_start, run_pilot
 
+#: the pilot's saved state, next to the chain checkpoint until the first chain checkpoint exists
+PILOT_STATE = "pilot-state.pkl"
+
 # ln p substituted for -inf inside the optimiser (differential evolution needs finite values)
 _WORST = 1e300
 
@@ -380,10 +383,12 @@ class StartState:
 
 
 def _pilot_start(posterior, settings: SamplerSettings, evaluator: EvaluationMap, seed: int,
-                 rng: np.random.Generator, n_walkers: int):
+                 rng: np.random.Generator, n_walkers: int, progress: bool = False,
+                 state_file=None, resume: bool = False):
     """Walkers on distinct pilot samples, and the proposal mixture fitted to the pilot sample."""
     pool = evaluator._pool
-    pilot = run_pilot(posterior, settings.pilot_live_points, settings.pilot_dlogz, seed, pool=pool)
+    pilot = run_pilot(posterior, settings.pilot_live_points, settings.pilot_dlogz, seed, pool=pool,
+                      progress=progress, state_file=state_file, resume=resume)
     evaluator.n_evaluations += pilot.n_calls
     pos = distinct_start(pilot.samples, n_walkers, rng)
     lp = evaluator.evaluate(pos)
@@ -405,13 +410,19 @@ def _pilot_start(posterior, settings: SamplerSettings, evaluator: EvaluationMap,
     return pos, lp, proposal, summary
 
 
-def start_state(posterior, settings: SamplerSettings, evaluator: EvaluationMap) -> StartState:
-    """Initial positions, their ln p and emcee's initial generator state."""
+def start_state(posterior, settings: SamplerSettings, evaluator: EvaluationMap,
+                progress: bool = False, pilot_state=None, resume_pilot: bool = False) -> StartState:
+    """Initial positions, their ln p and emcee's initial generator state.
+
+    ``pilot_state``: file where a nested-sampling pilot saves its state;
+    ``resume_pilot`` continues a saved pilot there.
+    """
     de_seed, rng, emcee_seed = _seeds(settings.seed)
     n_walkers = settings.n_walkers(posterior.ndim)
     random_state = np.random.RandomState(emcee_seed).get_state()
     if settings.pilot == "nested":
-        pos, lp, proposal, pilot = _pilot_start(posterior, settings, evaluator, de_seed, rng, n_walkers)
+        pos, lp, proposal, pilot = _pilot_start(posterior, settings, evaluator, de_seed, rng, n_walkers,
+                                                progress, pilot_state, resume_pilot)
         return StartState(pos, lp, random_state, proposal, pilot)
     if settings.optimiser == "none":
         pos, lp = prior_draws(posterior.priors, n_walkers, rng, evaluator)
@@ -450,6 +461,14 @@ def run_sampler(posterior, settings: SamplerSettings, checkpoint_path, workers: 
     checkpoint_path = Path(checkpoint_path)
     rule = ConvergenceRule(settings.tau_factor, settings.tau_rtol)
     show = settings.progress if progress is None else progress
+    pilot_state = checkpoint_path.with_name(PILOT_STATE)
+    restart = bool(resume and not checkpoint_path.is_file())
+    if restart:
+        # killed before the first chain checkpoint: the start stage runs again (a saved pilot
+        # continues where it stopped) and the chain is the one an uninterrupted run draws
+        warnings.warn(f"{checkpoint_path}: no chain checkpoint yet; repeating the start stage",
+                      RuntimeWarning, stacklevel=2)
+        resume = False
     with EvaluationMap(posterior, workers, pool=pool) as evaluator:
         if resume:
             remove_stale_temporaries(checkpoint_path)
@@ -468,7 +487,8 @@ def run_sampler(posterior, settings: SamplerSettings, checkpoint_path, workers: 
             n_done = ck.n_steps
             converged = ck.converged
         else:
-            start = start_state(posterior, settings, evaluator)
+            start = start_state(posterior, settings, evaluator, progress=show, pilot_state=pilot_state,
+                                resume_pilot=restart)
             pos, lp, rstate = start.positions, start.log_prob, start.random_state
             proposal, pilot = start.proposal, start.pilot
             chains, lps, history = [], [], []
@@ -506,6 +526,7 @@ def run_sampler(posterior, settings: SamplerSettings, checkpoint_path, workers: 
                                 evaluator.n_evaluations,
                                 elapsed_before + time.perf_counter() - t0, proposal, pilot)
                 write_checkpoint(checkpoint_path, ck)
+                pilot_state.unlink(missing_ok=True)     # the chain checkpoint now holds what the pilot gave
                 if bar is not None:
                     bar.set_postfix(acc=f"{np.mean(accepted) / n_done:.2f}",
                                     tau=f"{np.nanmax(tau):.1f}" if np.any(np.isfinite(tau)) else "nan")
