@@ -46,6 +46,18 @@ PRIORS = {
     **{f"log_vmr_{s}": ("uniform", -9.0, -1.5) for s in ABSORBERS},
 }
 
+# The same five T–P degrees of freedom as d ln T / d ln P in the four bands between the knot
+# pressures plus T at the deepest level (100 bar), the "gradient" profile; the truth is the
+# power-law profile through the knot truth above: g_i = ln(T_i+1 / T_i) / ln(P_i+1 / P_i).
+_T = [TRUTH[f"t_knot_{i}"] for i in range(5)]
+GRADIENT_TRUTH = {**{k: v for k, v in TRUTH.items() if not k.startswith("t_knot")}, "t_deep": _T[-1],
+                  **{f"dlnt_dlnp_{i}": float(np.log(_T[i + 1] / _T[i]) / np.log(KNOTS_BAR[i + 1] / KNOTS_BAR[i]))
+                     for i in range(4)}}
+GRADIENT_PRIORS = {**{k: v for k, v in PRIORS.items() if not k.startswith("t_knot")},
+                   "t_deep": ("uniform", 300.0, 3000.0),
+                   **{f"dlnt_dlnp_{i}": ("uniform", -0.1, 0.4) for i in range(4)}}
+PROFILES = {"knots": (TRUTH, PRIORS), "gradient": (GRADIENT_TRUTH, GRADIENT_PRIORS)}
+
 
 def _tables(folder: Path) -> str:
     from retrieve.opacity.opacity_set import project_opacity_dir
@@ -62,15 +74,17 @@ def _tables(folder: Path) -> str:
     return str(folder)
 
 
-def _model_table(opacity_dir: str, layers: int) -> dict:
-    m = {"absorbers": ABSORBERS, "profile": "knots", "knot_pressures_bar": KNOTS_BAR, "cia": CIA,
+def _model_table(opacity_dir: str, layers: int, profile: str = "knots") -> dict:
+    m = {"absorbers": ABSORBERS, "profile": profile, "cia": CIA,
          "hminus": True, "rayleigh": True, "layers": layers, "angles": 4}
+    m["knot_pressures_bar" if profile == "knots" else "gradient_pressures_bar"] = KNOTS_BAR
     if opacity_dir:
         m["opacity_dir"] = opacity_dir
     return m
 
 
-def simulate(folder: Path, opacity_dir: str, layers: int, seed: int = 1) -> tuple[Path, Path]:
+def simulate(folder: Path, opacity_dir: str, layers: int, seed: int = 1,
+             profile: str = "knots") -> tuple[Path, Path]:
     """Noisy 40-channel spectrum + J/H/Ks photometry from the truth; returns the two ECSV paths."""
     from retrieve.forward_model import ForwardModel, ModelSpec
     from retrieve.observations import Dataset
@@ -83,8 +97,9 @@ def simulate(folder: Path, opacity_dir: str, layers: int, seed: int = 1) -> tupl
                   channel_edges_um=np.column_stack([edges[:-1], edges[1:]]))
     wl = np.array([filter_effective_wavelength(f) for f in FILTERS])
     phot = Dataset("phot", "photometry", wl, np.ones(3), np.ones(3), filters=list(FILTERS))
-    spec = ModelSpec.from_mapping(_model_table(opacity_dir, layers), "benchmark [model]")
-    out = ForwardModel(spec, [ifs, phot]).evaluate(TRUTH).per_dataset
+    truth = PROFILES[profile][0]
+    spec = ModelSpec.from_mapping(_model_table(opacity_dir, layers, profile), "benchmark [model]")
+    out = ForwardModel(spec, [ifs, phot]).evaluate(truth).per_dataset
     rng = np.random.default_rng(seed)
     paths = []
     for ds, snr in ((ifs, 20.0), (phot, 20.0)):
@@ -92,19 +107,19 @@ def simulate(folder: Path, opacity_dir: str, layers: int, seed: int = 1) -> tupl
         sigma = model / snr
         ds.flux, ds.uncertainty = model + rng.normal(0.0, sigma), sigma
         path = folder / f"{ds.name}.ecsv"
-        write_dataset(ds, path, meta={"truth": TRUTH}, overwrite=True)
+        write_dataset(ds, path, meta={"truth": truth}, overwrite=True)
         paths.append(path)
     return paths[0], paths[1]
 
 
 def config_text(opacity_dir: str, layers: int, ifs_sigma: float, max_steps: int, seed: int,
-                moves: str = "stretch", check_every: int = 50) -> str:
+                moves: str = "stretch", check_every: int = 50, profile: str = "knots") -> str:
     def val(v):
         return json.dumps(v)
     lines = ["[object]", 'name = "benchmark"', "", "[model]"]
-    lines += [f"{k} = {val(v)}" for k, v in _model_table(opacity_dir, layers).items()]
+    lines += [f"{k} = {val(v)}" for k, v in _model_table(opacity_dir, layers, profile).items()]
     lines += ["", "[parameters]", f"distance_pc = {TRUTH['distance_pc']}"]
-    for name, (kind, lo, hi) in PRIORS.items():
+    for name, (kind, lo, hi) in PROFILES[profile][1].items():
         lines.append(f'{name} = {{ prior = "{kind}", low = {lo}, high = {hi} }}')
     b = 2 * np.log10(ifs_sigma)
     lines.append(f'log_inflate_ifs = {{ prior = "uniform", low = {b - 4:.2f}, high = {b + 2:.2f} }}')
@@ -130,6 +145,9 @@ def main(argv=None) -> int:
     ap.add_argument("--check-every", type=int, default=50,
                     help="[sampler] check_every: steps between τ checks (the 1 %% stability test "
                          "compares consecutive checks)")
+    ap.add_argument("--profile", default="knots", choices=tuple(PROFILES),
+                    help="T–P parametrisation of the 5 T–P parameters: free knot temperatures or "
+                         "T(100 bar) + 4 gradients d ln T / d ln P")
     ap.add_argument("--keep", metavar="RUN_DIR", help="write the run folder here (default: a temporary folder)")
     args = ap.parse_args(argv)
     from retrieve.inference import fit
@@ -140,18 +158,18 @@ def main(argv=None) -> int:
         opacity_dir = _tables(tmp / "tables")
         source = "bundled tables in opacity_tables/" if not opacity_dir else \
             "SYNTHETIC random-but-smooth tables (bundled tables not all present)"
-        ifs, _ = simulate(tmp, opacity_dir, args.layers)
+        ifs, _ = simulate(tmp, opacity_dir, args.layers, profile=args.profile)
         sigma = float(np.median(read_dataset(ifs).uncertainty))
         cfg = tmp / "fit.toml"
         cfg.write_text(config_text(opacity_dir, args.layers, sigma, args.max_steps, args.seed, args.moves,
-                                  args.check_every))
+                                  args.check_every, args.profile))
         out = Path(args.keep) if args.keep else tmp / "run"
         t0 = time.perf_counter()
         res = fit(cfg, out_dir=out, workers=args.workers, overwrite=bool(args.keep))
         wall = time.perf_counter() - t0
         manifest = json.loads((out / "manifest.json").read_text())
         print(f"opacity: {source}")
-        print(f"moves: {args.moves}; layers: {args.layers}")
+        print(f"moves: {args.moves}; profile: {args.profile}; layers: {args.layers}")
         print(f"free parameters: {len(manifest['param_names'])} ({', '.join(manifest['param_names'])})")
         print(f"{'converged' if res.converged else 'NOT converged'} after {res.n_steps} steps x {res.n_walkers} "
               f"walkers; tau max {np.max(res.tau):.1f}; acceptance {res.acceptance_fraction:.2f}")
@@ -165,7 +183,7 @@ def main(argv=None) -> int:
         if res.failures:
             print("evaluation failures: " + ", ".join(f"{k}: {v}" for k, v in res.failures.most_common()))
         rows = {r["name"]: r for r in res.summary}
-        for name, truth in TRUTH.items():
+        for name, truth in PROFILES[args.profile][0].items():
             if name in rows:
                 r = rows[name]
                 print(f"  {name:14s} truth {truth:9.3f}  median {r['median']:9.3f}  "

@@ -42,7 +42,7 @@ MANIFEST = "manifest.json"
 SPECTRUM = "spectrum_{name}.ecsv"
 
 _RUN_MARKERS = (CHAIN, MANIFEST, CONFIG)
-PACKAGES = ("retrieve-atmo", "numpy", "scipy", "astropy", "emcee", "h5py", "tqdm", "speclite")
+PACKAGES = ("retrieve-atmo", "numpy", "scipy", "astropy", "emcee", "h5py", "tqdm", "speclite", "dynesty")
 
 
 def prepare_run_dir(out_dir, overwrite: bool = False, resume: bool = False) -> Path:
