@@ -138,6 +138,10 @@ def test_pilot_mixture_fit_recovers_the_analytic_posterior(linear_data, tmp_path
     assert abs(pilot["ln_z"] - ln_z) < 3 * pilot["ln_z_err"] + 0.2
     assert pilot["likelihood_calls"] > 0 and pilot["mixture_components"] >= 1
     assert np.max(res.tau) < 10            # independence draws from a good mixture decorrelate fast
+    # the report says where the walkers came from and that the pilot's ln Z is no model comparison
+    from retrieve.report.build import report_content
+    notes = report_content(load_run(tmp_path / "run", model_factory=LinearModelFactory(N_COEF)), figures=()).notes
+    assert any("nested-sampling pilot" in n and "not an evidence for model comparison" in n for n in notes)
 
 
 def test_pilot_runs_are_reproducible_and_independent_of_workers(linear_data, tmp_path):

@@ -105,6 +105,15 @@ def report_content(run, figures=run_figures.FIGURES) -> ReportContent:
     if not conv.get("converged", False):
         notes.append("The chain did not meet the convergence rule (length > tau_factor × τ and τ stable); "
                      "treat the intervals as indicative and run longer (raise [sampler] max_steps or --resume).")
+    pilot = run.manifest.get("pilot") or {}
+    if pilot:
+        notes.append(f"The walkers started from a nested-sampling pilot run ({pilot.get('likelihood_calls', 0)} "
+                     f"likelihood calls; its ln Z = {pilot.get('ln_z', float('nan')):.1f} is a loose by-product, "
+                     f"not an evidence for model comparison).")
+    elif conv.get("converged", False):
+        notes.append("The convergence rule is necessary, not sufficient: the walkers started near one optimum "
+                     "and may never have reached another mode. A nested-sampling pilot explores the whole prior "
+                     "first ([sampler] pilot = \"nested\", moves = \"pilot-mixture\").")
     tables = [ReportTable("convergence", "Convergence diagnostics", convergence_overview(run)),
               ReportTable("autocorrelation", "Autocorrelation time per parameter", convergence_table(run),
                           note="τ: integrated autocorrelation time in steps (emcee); chain length / τ should "
