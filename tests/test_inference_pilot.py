@@ -13,44 +13,18 @@ from retrieve.inference.toymodel import LinearModelFactory
 from retrieve.observations import Dataset
 from retrieve.observations.writers import write_dataset
 
-N_COEF = 3
-ALPHA = 0.25          # prior precision: coef_k ~ N(0, 2²)
-SIGMA = 0.2
-X = np.linspace(1.0, 2.0, 25)
+from linear_case import N_COEF, SIGMA, X, analytic_posterior, linear_config, write_linear_data
 
 
 @pytest.fixture(scope="module")
 def linear_data(tmp_path_factory):
-    rng = np.random.default_rng(11)
-    y = 0.5 + 1.0 * (X - 1) - 0.8 * (X - 1) ** 2 + rng.normal(0, SIGMA, X.size)
     path = tmp_path_factory.mktemp("pilot") / "lin.ecsv"
-    write_dataset(Dataset("ifs", "spectrum", X, y, np.full(X.size, SIGMA)), path)
-    return path, y
+    return path, write_linear_data(path, seed=11)
 
 
 def _config(path, **sampler):
-    s = {"max_steps": 3000, "check_every": 50, "seed": 1, "progress": False, "pilot": "nested",
-         "moves": "pilot-mixture", "pilot_live_points": 100, **sampler}
-    sd = float(1 / np.sqrt(ALPHA))
-    return parse_config({
-        "parameters": {f"coef_{k}": {"prior": "gaussian", "mean": 0.0, "sigma": sd} for k in range(N_COEF)},
-        "datasets": [{"name": "ifs", "file": str(path)}], "sampler": s})
-
-
-def _analytic(y):
-    """Posterior mean, covariance and ln evidence of the linear-Gaussian model.
-
-    Bishop (2006) PRML eqs. 3.53–3.54 (posterior) and 3.86 (log evidence).
-    """
-    phi = np.vander(X - 1.0, N_COEF, increasing=True)
-    beta = 1 / SIGMA ** 2
-    a = ALPHA * np.eye(N_COEF) + beta * phi.T @ phi
-    s_n = np.linalg.inv(a)
-    m_n = beta * s_n @ phi.T @ y
-    e_m = 0.5 * beta * np.sum((y - phi @ m_n) ** 2) + 0.5 * ALPHA * m_n @ m_n
-    ln_z = (0.5 * N_COEF * np.log(ALPHA) + 0.5 * X.size * np.log(beta) - e_m
-            - 0.5 * np.linalg.slogdet(a)[1] - 0.5 * X.size * np.log(2 * np.pi))
-    return m_n, s_n, ln_z
+    return linear_config(path, {"max_steps": 3000, "check_every": 50, "seed": 1, "progress": False,
+                                "pilot": "nested", "moves": "pilot-mixture", "pilot_live_points": 100}, **sampler)
 
 
 # --------------------------------------------------------------------------- mixtures
@@ -125,7 +99,7 @@ def test_independence_move_samples_the_target_despite_a_poor_proposal():
 def test_pilot_mixture_fit_recovers_the_analytic_posterior(linear_data, tmp_path):
     path, y = linear_data
     res = fit(_config(path), out_dir=tmp_path / "run", model_factory=LinearModelFactory(N_COEF))
-    m_n, s_n, ln_z = _analytic(y)
+    m_n, s_n, ln_z = analytic_posterior(y)
     assert res.converged
     samples = np.column_stack([res.samples[f"coef_{k}"] for k in range(N_COEF)])
     n_used = (res.n_steps - res.burn_in) * res.n_walkers

@@ -14,30 +14,17 @@ from retrieve.inference import fit, load_run, parse_config
 from retrieve.inference.checkpoint import Checkpoint, read_checkpoint, write_checkpoint
 from retrieve.inference.convergence import ConvergenceRule, autocorr_time, burn_in_and_thin
 from retrieve.inference.toymodel import LinearModelFactory
-from retrieve.observations import Dataset
-from retrieve.observations.writers import write_dataset
-
-N_COEF = 3
-ALPHA = 0.25          # prior precision: coef_k ~ N(0, 1/α) = N(0, 2²)
-SIGMA = 0.2           # noise: β = 1/σ²
-X = np.linspace(1.0, 2.0, 25)
+from linear_case import ALPHA, N_COEF, SIGMA, X, linear_config, write_linear_data
 
 
 @pytest.fixture(scope="module")
 def linear_data(tmp_path_factory):
-    rng = np.random.default_rng(7)
-    y = 0.5 + 1.0 * (X - 1) - 0.8 * (X - 1) ** 2 + rng.normal(0, SIGMA, X.size)
     path = tmp_path_factory.mktemp("lin") / "lin.ecsv"
-    write_dataset(Dataset("ifs", "spectrum", X, y, np.full(X.size, SIGMA)), path)
-    return path, y
+    return path, write_linear_data(path, seed=7)
 
 
 def _config(path, **sampler):
-    s = {"max_steps": 20000, "check_every": 500, "seed": 1, "progress": False, **sampler}
-    sd = float(1 / np.sqrt(ALPHA))
-    return parse_config({
-        "parameters": {f"coef_{k}": {"prior": "gaussian", "mean": 0.0, "sigma": sd} for k in range(N_COEF)},
-        "datasets": [{"name": "ifs", "file": str(path)}], "sampler": s})
+    return linear_config(path, {"max_steps": 20000, "check_every": 500, "seed": 1, "progress": False}, **sampler)
 
 
 def test_linear_gaussian_posterior_is_recovered(linear_data, tmp_path):
