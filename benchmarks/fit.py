@@ -8,14 +8,18 @@ with the same forward model (80 levels, H2-H2 + H2-He CIA, H⁻, 4 angles) and
 Gaussian noise (S/N 20 per channel, 5 % photometry).
 
 Prints the wall time to convergence (the engine's rule: chain longer than
-50 τ and τ stable to 1 %), the number of steps, τ, and posterior evaluations
-per second.
+50 τ and τ stable to 1 %, checked every ``--check-every`` steps), the number
+of steps, τ, posterior evaluations per second and, with the default
+``--moves pilot-mixture`` (which adds ``pilot = "nested"``), the size of the
+nested-sampling pilot.  ``--profile gradient`` expresses the same five T–P
+degrees of freedom as T(100 bar) and four gradients d ln T / d ln P.
 
 Uses the bundled tables in ``opacity_tables/`` when all are present; until
 then it builds the synthetic random-but-smooth tables of
 ``benchmarks/forward_model.py`` in a temporary folder and says so.
 
-Run: ``python benchmarks/fit.py [--workers 2] [--max-steps 40000] [--keep RUN_DIR]``.
+Run: ``python benchmarks/fit.py [--workers 2] [--max-steps 40000] [--moves pilot-mixture]
+[--check-every 50] [--profile knots] [--keep RUN_DIR]``.
 """
 from __future__ import annotations
 
