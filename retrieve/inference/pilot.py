@@ -28,6 +28,7 @@ import numpy as np
 # ln L handed to dynesty for points where the model fails (it needs a finite number)
 _LOG_FLOOR = -1.0e300
 
+
 def log_likelihood_of(posterior, theta) -> float:
     """ln L(θ) = ln p(θ | d) − ln π(θ) from ``posterior.evaluate``; failures → a very low value."""
     lp, _ = posterior.evaluate(theta)
