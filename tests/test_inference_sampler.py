@@ -210,3 +210,31 @@ def test_process_pool_matches_serial_and_reports_failures(linear_data, tmp_path)
     manifest = load_run(tmp_path / "p", model_factory=factory).manifest
     assert manifest["evaluation_failures"] == dict(serial.failures)
     assert np.all(a[..., 0] <= 0.0)     # no walker ever accepted in the failing region
+
+
+class _ModelFailsInWorkers:
+    """A posterior whose model cannot be built in a child process (e.g. a table missing there)."""
+
+    ndim = 1
+
+    def __init__(self):
+        self.parent = os.getpid()
+
+    @property
+    def model(self):
+        if os.getpid() != self.parent:
+            raise OSError("opacity table not readable")
+        return object()
+
+    def evaluate(self, theta):
+        return 0.0, ""
+
+
+def test_a_worker_that_cannot_build_the_model_fails_with_one_line(tmp_path):
+    from retrieve.inference.sampler import EvaluationMap
+    t0 = time.perf_counter()
+    with pytest.raises(UserError, match=r"a worker process could not build the model \(OSError: opacity table "
+                                        r"not readable\); try --workers 1"):
+        with EvaluationMap(_ModelFailsInWorkers(), workers=2) as ev:
+            ev.evaluate([np.zeros(1), np.ones(1)])
+    assert time.perf_counter() - t0 < 30          # it fails instead of respawning workers for ever

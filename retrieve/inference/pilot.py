@@ -50,7 +50,8 @@ class _LogLikelihood:
 
     def __call__(self, theta):
         from . import sampler
-        post = sampler._WORKER_POSTERIOR if sampler._WORKER_POSTERIOR is not None else _LOCAL_POSTERIOR
+        in_worker = sampler._WORKER_POSTERIOR is not None or sampler._WORKER_ERROR is not None
+        post = sampler.worker_posterior() if in_worker else _LOCAL_POSTERIOR
         return log_likelihood_of(post, np.asarray(theta, dtype=float))
 
 

@@ -109,21 +109,38 @@ class SamplerInterrupted(UserError):
 
 # --------------------------------------------------------------------------- evaluation map
 _WORKER_POSTERIOR = None
+_WORKER_ERROR = None
 
 
 def _init_worker(posterior):
-    """Pool initialiser: keep the posterior and build its model once in this process."""
-    global _WORKER_POSTERIOR
-    _WORKER_POSTERIOR = posterior
-    _ = posterior.model
+    """Pool initialiser: keep the posterior and build its model once in this process.
+
+    A failure is kept, not raised: an initialiser that raises makes
+    multiprocessing replace the worker again and again, so the run would hang.
+    The first task then reports it (:func:`worker_posterior`).
+    """
+    global _WORKER_POSTERIOR, _WORKER_ERROR
+    try:
+        _ = posterior.model
+        _WORKER_POSTERIOR = posterior
+    except Exception as exc:  # noqa: BLE001 - reported by the first task, in the parent
+        _WORKER_ERROR = f"{type(exc).__name__}: {exc}"
+
+
+def worker_posterior():
+    """The posterior of this pool worker; a one-line :class:`UserError` if it could not be built."""
+    if _WORKER_ERROR is not None:
+        raise UserError(f"a worker process could not build the model ({_WORKER_ERROR}); "
+                        f"try --workers 1 to see the error in the main process")
+    return _WORKER_POSTERIOR
 
 
 def _worker_evaluate(theta):
-    return _WORKER_POSTERIOR.evaluate(theta)
+    return worker_posterior().evaluate(theta)
 
 
 def _worker_polish(task):
-    return polish(_WORKER_POSTERIOR, *task)
+    return polish(worker_posterior(), *task)
 
 
 class EvaluationMap:
