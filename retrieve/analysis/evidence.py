@@ -42,6 +42,7 @@ import numpy as np
 from scipy import linalg, special
 
 from ..errors import ModelEvaluationError, UserError
+from ..inference.pilot import PriorTransform
 
 PROPOSALS = ("normal", "t", "mixture")
 _LOG_FLOOR = -1e300
@@ -472,14 +473,6 @@ class _NestedLikelihood:
         return v if math.isfinite(v) else _LOG_FLOOR
 
 
-class _PriorTransform:
-    def __init__(self, priors):
-        self.priors = list(priors)
-
-    def __call__(self, u):
-        return np.array([float(p.transform(ui)) for p, ui in zip(self.priors, u)])
-
-
 def nested_sampling_evidence(log_likelihood: Callable, prior_transform: Callable, ndim: int,
                              nlive: int = 250, dlogz: float = 0.05, seed: int = 0,
                              sample: str = "auto") -> EvidenceResult:
@@ -514,5 +507,5 @@ def nested_sampling_evidence(log_likelihood: Callable, prior_transform: Callable
 
 def nested_evidence_of_run(log_posterior, nlive: int = 250, dlogz: float = 0.05, seed: int = 0) -> EvidenceResult:
     """dynesty evidence of a :class:`~retrieve.inference.likelihood.LogPosterior` (cross-check)."""
-    return nested_sampling_evidence(_NestedLikelihood(log_posterior), _PriorTransform(log_posterior.priors),
+    return nested_sampling_evidence(_NestedLikelihood(log_posterior), PriorTransform(log_posterior.priors),
                                     log_posterior.ndim, nlive=nlive, dlogz=dlogz, seed=seed)

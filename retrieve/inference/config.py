@@ -35,7 +35,8 @@ from ..config_keys import check_keys, expect_type, suggest
 from ..errors import ConfigError
 from .likelihood import NUISANCE_PREFIXES, nuisance_names
 from .priors import Gaussian, Prior, prior_from_mapping
-from .sampler import MOVES, SamplerSettings
+from .moves import MOVES
+from .sampler import SamplerSettings
 
 TOP_KEYS = ("object", "model", "parameters", "datasets", "sampler", "simulate", "survey")
 DATASET_KEYS = ("name", "file", "covariance", "resolving_power", "kind", "scale", "inflate_errors",

@@ -108,12 +108,11 @@ def _em(x: np.ndarray, w: np.ndarray, k: int, rng: np.random.Generator, max_iter
             log_joint = mix.component_log_pdf(x) + np.log(mix.weights)
         total = logsumexp(log_joint, axis=1)
         resp = np.exp(log_joint - total[:, None])
-        current = float(w @ total)
+        current = float(w @ total)      # mean log-likelihood of ``mix``
         if current - previous < tol:
             break
         previous = current
-    with np.errstate(divide="ignore"):
-        return mix, float(w @ logsumexp(mix.component_log_pdf(x) + np.log(mix.weights), axis=1))
+    return mix, current
 
 
 def fit_mixture(samples: np.ndarray, rng: np.random.Generator, components=(1, 2, 3, 4, 6, 8),

@@ -56,7 +56,7 @@ from ..errors import UserError
 from .checkpoint import Checkpoint, read_checkpoint, remove_stale_temporaries, write_checkpoint
 from .convergence import ConvergenceRule, autocorr_time, tau_discard
 from .mixture import defensive, fit_mixture
-from .moves import MOVES, NEEDS_MIXTURE, make_moves  # noqa: F401  (MOVES: re-exported for the config)
+from .moves import NEEDS_MIXTURE, make_moves
 from .pilot import distinct_start, run_pilot
 
 #: the pilot's saved state, next to the chain checkpoint until the first chain checkpoint exists
