@@ -49,7 +49,8 @@ class ModelSpec:
     profile : str
         Key of :data:`retrieve.atmosphere.profiles.PROFILES`.
     profile_options : dict
-        Profile-specific keys (``knot_pressures_bar``, ``gradient_pressures_bar``, ``guillot_f``).
+        Profile-specific keys (``knot_pressures_bar``, ``knot_columns_g_cm2``, ``gradient_pressures_bar``,
+        ``guillot_f``).
     cia : list of str
         Collision pairs, default ``["H2-H2", "H2-He"]``.
     hminus, rayleigh : bool

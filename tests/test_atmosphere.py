@@ -6,7 +6,7 @@ import pytest
 from retrieve import constants
 from retrieve.atmosphere import (PROFILES, FreeChemistry, build_profile, column_mass, layer_optical_depth,
                                  pressure_levels)
-from retrieve.atmosphere.profiles import GradientProfile, GuillotProfile, KnotsProfile
+from retrieve.atmosphere.profiles import ColumnKnotsProfile, GradientProfile, GuillotProfile, KnotsProfile
 from retrieve.errors import ConfigError, ModelEvaluationError
 
 
@@ -112,6 +112,36 @@ def test_pchip_reproduces_a_line_in_log_p():
     np.testing.assert_allclose(prof.temperature(p, params), 500.0 + 250.0 * (np.log10(p) + 3.0), rtol=1e-12)
 
 
+def test_column_knots_sit_at_fixed_column_mass():
+    columns = [1.0, 100.0, 1.0e4]
+    prof = ColumnKnotsProfile(columns)
+    assert prof.parameter_names == ["t_knot_0", "t_knot_1", "t_knot_2", "log_g"]
+    temps = {"t_knot_0": 700.0, "t_knot_1": 1300.0, "t_knot_2": 2400.0}
+    for log_g in (3.0, 4.3, 5.5):
+        knots_p = prof.knot_pressures_for(log_g)
+        # hydrostatic column above each knot pressure is the knot's column (m = P / g, Mihalas 1978 §7-2)
+        np.testing.assert_allclose(column_mass(knots_p, 10.0 ** log_g), columns, rtol=1e-12)
+        # same curve as a pressure-knots profile placed at those pressures
+        p = pressure_levels(1e-6, 1e3, 200)
+        np.testing.assert_allclose(prof.temperature(p, {**temps, "log_g": log_g}),
+                                   KnotsProfile(knots_p).temperature(p, temps), rtol=1e-12)
+    # at log g = 4, 100 g cm⁻² is 1 bar (100 × 1e4 dyn cm⁻² = 1e6 dyn cm⁻²; unit arithmetic)
+    assert prof.knot_pressures_for(4.0)[1] == pytest.approx(1.0, rel=1e-12, abs=0.0)
+    # raising g by 1 dex moves the whole profile to 10× the pressure: T(P) at g' = T(P / 10) at g
+    p = np.logspace(-3, 1, 30)
+    np.testing.assert_allclose(prof.temperature(10.0 * p, {**temps, "log_g": 5.0}),
+                               prof.temperature(p, {**temps, "log_g": 4.0}), rtol=1e-12)
+
+
+def test_column_knots_options():
+    prof = build_profile("column-knots", {"knot_columns_g_cm2": [1.0, 10.0]}, "fit.toml [model]")
+    assert isinstance(prof, ColumnKnotsProfile)
+    with pytest.raises(ConfigError, match="knot_columns_g_cm2.*column masses"):
+        build_profile("column-knots", {}, "fit.toml [model]")
+    with pytest.raises(ConfigError, match="ascending column masses"):
+        build_profile("column-knots", {"knot_columns_g_cm2": [10.0, 1.0]}, "fit.toml [model]")
+
+
 def test_gradient_profile_power_law():
     p = pressure_levels(1e-5, 100.0, 50)
     prof = GradientProfile([1e-6, 1e3])   # one band covering everything
@@ -130,7 +160,7 @@ def test_gradient_profile_two_bands():
 
 
 def test_profile_registry_and_errors():
-    assert set(PROFILES) >= {"isothermal", "guillot", "knots", "gradient"}
+    assert set(PROFILES) >= {"isothermal", "guillot", "knots", "column-knots", "gradient"}
     with pytest.raises(ConfigError, match="did you mean 'guillot'"):
         build_profile("guilot", {}, "fit.toml [model]")
     with pytest.raises(ConfigError, match="knot_pressures_bar"):

@@ -81,16 +81,16 @@ class GuillotProfile(TPProfile):
         return np.sqrt(np.sqrt(t4))
 
 
-def _float_list(options: Mapping, key: str, where: str, minimum: int) -> np.ndarray:
+def _float_list(options: Mapping, key: str, where: str, minimum: int, what: str = "pressures in bar") -> np.ndarray:
     value = options.get(key)
     if value is None:
-        raise ConfigError(f"{where}: profile needs key {key!r} (list of pressures in bar)")
+        raise ConfigError(f"{where}: profile needs key {key!r} (list of {what})")
     if not isinstance(value, (list, tuple)) or not all(
             isinstance(v, (int, float)) and not isinstance(v, bool) for v in value):
         raise ConfigError(f"{where}: key {key!r} must be a list of numbers, got {value!r}")
     arr = np.asarray(value, dtype=np.float64)
     if arr.size < minimum or np.any(~np.isfinite(arr)) or np.any(arr <= 0) or np.any(np.diff(arr) <= 0):
-        raise ConfigError(f"{where}: key {key!r} must hold at least {minimum} positive, strictly ascending pressures")
+        raise ConfigError(f"{where}: key {key!r} must hold at least {minimum} positive, strictly ascending {what.split(' in ')[0]}")
     return arr
 
 
@@ -160,6 +160,48 @@ class KnotsProfile(TPProfile):
         return pchip_evaluate(self._x, y, m, np.log10(pressure_bar))
 
 
+class ColumnKnotsProfile(TPProfile):
+    """Free temperatures ``t_knot_i`` at fixed column masses ``knot_columns_g_cm2``.
+
+    The column mass above a level is m = P / g in hydrostatic equilibrium
+    (Mihalas 1978, *Stellar Atmospheres*, §7-2), so the knot pressures move
+    with gravity: P_i = m_i · 10^log_g.  Interpolation as in the ``knots``
+    profile (PCHIP in log P, constant beyond the end knots).
+
+    Why: a molecular optical depth is τ = κ X m, so a spectrum fixes X and
+    T(m) far better than it fixes g.  With knots at fixed pressures, a change
+    of g along that degeneracy must be absorbed by raising every abundance
+    and sliding the whole profile in log P, which the knot temperatures can
+    only follow along a long, curved ridge.  In column-mass coordinates the
+    same degeneracy is a nearly straight line in (log g, log X), which
+    ensemble samplers cross quickly (see README, "Degenerate and multimodal
+    posteriors").  g remains constrained by pressure-dependent opacity
+    (collision-induced absorption, τ ∝ m² g; H⁻).
+    """
+
+    name = "column-knots"
+    option_keys = ("knot_columns_g_cm2",)
+
+    def __init__(self, knot_columns_g_cm2: Sequence[float]):
+        self.knot_columns_g_cm2 = np.asarray(knot_columns_g_cm2, dtype=np.float64)
+        self._log_m = np.log10(self.knot_columns_g_cm2 / BAR_TO_DYN_CM2)   # log10(P_bar) − log_g
+        self._knots = [f"t_knot_{i}" for i in range(self._log_m.size)]
+        self.parameter_names = self._knots + ["log_g"]
+
+    @classmethod
+    def from_options(cls, options, where):
+        return cls(_float_list(options, "knot_columns_g_cm2", where, minimum=2, what="column masses in g cm⁻²"))
+
+    def knot_pressures_for(self, log_g: float) -> np.ndarray:
+        """Knot pressures (bar) at surface gravity 10^log_g (cgs)."""
+        return 10.0 ** (self._log_m + float(log_g))
+
+    def temperature(self, pressure_bar, params):
+        y = np.array([params[n] for n in self._knots], dtype=np.float64)
+        x = self._log_m + float(params["log_g"])
+        return pchip_evaluate(x, y, pchip_slopes(x, y), np.log10(pressure_bar))
+
+
 class GradientProfile(TPProfile):
     """T at the deepest level (``t_deep``) and constant d ln T / d ln P per band.
 
@@ -208,7 +250,7 @@ class GradientProfile(TPProfile):
 
 #: ``[model] profile`` name -> profile class; add new profiles here (see DEVELOPERS.md).
 PROFILES: dict[str, type[TPProfile]] = {
-    cls.name: cls for cls in (IsothermalProfile, GuillotProfile, KnotsProfile, GradientProfile)
+    cls.name: cls for cls in (IsothermalProfile, GuillotProfile, KnotsProfile, ColumnKnotsProfile, GradientProfile)
 }
 
 
