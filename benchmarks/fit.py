@@ -60,7 +60,12 @@ GRADIENT_TRUTH = {**{k: v for k, v in TRUTH.items() if not k.startswith("t_knot"
 GRADIENT_PRIORS = {**{k: v for k, v in PRIORS.items() if not k.startswith("t_knot")},
                    "t_deep": ("uniform", 300.0, 3000.0),
                    **{f"dlnt_dlnp_{i}": ("uniform", -0.1, 0.4) for i in range(4)}}
-PROFILES = {"knots": (TRUTH, PRIORS), "gradient": (GRADIENT_TRUTH, GRADIENT_PRIORS)}
+# The same five knot temperatures at fixed column mass m = P / g, the "column-knots" profile; the
+# round columns sit at the pressures of KNOTS_BAR when log g = 4 (m = P / g), i.e. at 1.6× those
+# pressures for the truth's log g = 4.2.  The data are simulated with this profile.
+KNOT_COLUMNS_G_CM2 = [p * 1e6 / 1e4 for p in KNOTS_BAR]
+PROFILES = {"knots": (TRUTH, PRIORS), "gradient": (GRADIENT_TRUTH, GRADIENT_PRIORS),
+            "column-knots": (TRUTH, PRIORS)}
 
 
 def _tables(folder: Path) -> str:
@@ -81,7 +86,10 @@ def _tables(folder: Path) -> str:
 def _model_table(opacity_dir: str, layers: int, profile: str = "knots") -> dict:
     m = {"absorbers": ABSORBERS, "profile": profile, "cia": CIA,
          "hminus": True, "rayleigh": True, "layers": layers, "angles": 4}
-    m["knot_pressures_bar" if profile == "knots" else "gradient_pressures_bar"] = KNOTS_BAR
+    if profile == "column-knots":
+        m["knot_columns_g_cm2"] = KNOT_COLUMNS_G_CM2
+    else:
+        m["knot_pressures_bar" if profile == "knots" else "gradient_pressures_bar"] = KNOTS_BAR
     if opacity_dir:
         m["opacity_dir"] = opacity_dir
     return m
