@@ -49,7 +49,8 @@ class ModelSpec:
     profile : str
         Key of :data:`retrieve.atmosphere.profiles.PROFILES`.
     profile_options : dict
-        Profile-specific keys (``knot_pressures_bar``, ``knot_columns_g_cm2``, ``gradient_pressures_bar``,
+        Profile-specific keys (``knot_pressures_bar``, ``knot_columns_g_cm2``, ``knot_optical_depths``,
+        ``gradient_pressures_bar``,
         ``guillot_f``).
     cia : list of str
         Collision pairs, default ``["H2-H2", "H2-He"]``.
@@ -246,6 +247,7 @@ class ForwardModel:
         self.mu, self.mu_weights = gauss_legendre_mu(spec.angles)
         self._planck = PlanckCache(self.wavelength_um)
         self.operators = self._operators()
+        self.profile.bind(self)
         self.parameter_names = self._parameter_names()
 
     # ---- set-up -------------------------------------------------------------------------------

@@ -160,7 +160,7 @@ def test_gradient_profile_two_bands():
 
 
 def test_profile_registry_and_errors():
-    assert set(PROFILES) >= {"isothermal", "guillot", "knots", "column-knots", "gradient"}
+    assert set(PROFILES) >= {"isothermal", "guillot", "knots", "column-knots", "tau-knots", "gradient"}
     with pytest.raises(ConfigError, match="did you mean 'guillot'"):
         build_profile("guilot", {}, "fit.toml [model]")
     with pytest.raises(ConfigError, match="knot_pressures_bar"):

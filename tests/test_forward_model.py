@@ -418,3 +418,77 @@ def test_any_parameters_give_a_spectrum_or_a_model_error(toy_set):
     # the finite-flux branch must have been reached, not only the error branch (before the valid
     # draws above, none of 150 examples ever got past the error branch)
     assert len(evaluated) >= 2   # the explicit valid example and at least one drawn one
+
+
+def _tau_knots_model(opac, species, depths=(1e-3, 0.1, 10.0, 1e3), **extra):
+    spec = ModelSpec.from_mapping({"absorbers": species, "profile": "tau-knots", "knot_optical_depths": list(depths),
+                                   **NO_CONTINUUM, **extra})
+    return ForwardModel(spec, [], opac)
+
+
+def test_tau_knots_sit_at_their_grey_optical_depth():
+    species = ["H2O", "CH4"]
+    opac = OpacitySet.from_tables({"H2O": grey_table("H2O", WL, -21.0), "CH4": grey_table("CH4", WL, -22.0)})
+    model = _tau_knots_model(opac, species)
+    prof = model.profile
+    assert model.parameter_names == ["log_g", "radius_rjup", "distance_pc", "t_knot_0", "t_knot_1", "t_knot_2",
+                                     "t_knot_3", "log_vmr_H2O", "log_vmr_CH4"]
+    # the Planck-weighted mean of a constant cross section is that constant
+    ref = prof.reference_cross_sections()
+    assert ref["H2O"] == pytest.approx(1e-21, rel=1e-6, abs=0.0) and ref["CH4"] == pytest.approx(1e-22, rel=1e-6, abs=0.0)
+    params = base_params(species, log_g=4.4, log_vmr_H2O=-3.0, log_vmr_CH4=-4.0)
+    # κ̄ = Σ x σ / (μ m_u); μ by hand from the masses (H2O 18.015, CH4 16.043, H2 2.016, He 4.003 amu,
+    # values from memory) and He/H2 = 2 n_He / n_H with log ε(He) = 10.93 (Asplund et al. 2009, Table 1)
+    x = np.array([1e-3, 1e-4])
+    rest = 1.0 - x.sum()
+    he_h2 = 2.0 * 10 ** (10.93 - 12.0)
+    f_he = he_h2 / (1.0 + he_h2)
+    mu = x @ [18.015, 16.043] + rest * ((1 - f_he) * 2.016 + f_he * 4.003)
+    kappa = (x @ [1e-21, 1e-22]) / (mu * AMU_CGS)
+    assert prof.grey_opacity(params) == pytest.approx(kappa, rel=2e-4, abs=0.0)
+    # hydrostatic grey optical depth at each knot, τ = κ̄ P / g, is the knot's depth
+    p_k = prof.knot_pressures_for(params)
+    np.testing.assert_allclose(prof.grey_opacity(params) * p_k * BAR_TO_DYN_CM2 / 10 ** 4.4,
+                               [1e-3, 0.1, 10.0, 1e3], rtol=1e-12)
+    temps = {"t_knot_0": 600.0, "t_knot_1": 900.0, "t_knot_2": 1600.0, "t_knot_3": 2500.0}
+    np.testing.assert_allclose(prof.temperature(p_k, {**params, **temps}), list(temps.values()), rtol=1e-12)
+    # ten times the abundances: knots at a tenth of the pressure, times μ(10 x) / μ(x) (heavier gas)
+    more = {**params, "log_vmr_H2O": -2.0, "log_vmr_CH4": -3.0}
+    x10 = 10.0 * x
+    mu10 = x10 @ [18.015, 16.043] + (1.0 - x10.sum()) * ((1 - f_he) * 2.016 + f_he * 4.003)
+    ratio = prof.knot_pressures_for(params) / prof.knot_pressures_for(more)
+    np.testing.assert_allclose(ratio, 10.0 * mu / mu10, rtol=2e-4)
+
+
+def test_tau_knots_reference_cross_section_is_a_planck_mean(toy_set):
+    opac, species = toy_set
+    model = _tau_knots_model(opac, species)
+    level = int(np.argmin(np.abs(np.log(model.pressure_bar))))            # the level nearest 1 bar
+    sigma = np.array(model.molecular.cross_sections(np.full(model.pressure_bar.size, 1500.0))[level], dtype=float)
+    # Planck weights from astropy.modeling.physical_models.BlackBody, trapezoid rule from numpy
+    b = BlackBody(temperature=1500.0 * u.K)(model.wavelength_um * u.um).value
+    expected = np.trapezoid(sigma * b * model.wavelength_um ** -2, model.wavelength_um, axis=1) / \
+        np.trapezoid(b * model.wavelength_um ** -2, model.wavelength_um)
+    got = np.array(list(model.profile.reference_cross_sections().values()))
+    # B_ν·ν²/c = B_λ, so B_ν λ⁻² ∝ B_λ; both sides use the trapezoid rule on the same grid.  (An
+    # unweighted mean differs by 5–13 %, a 2000 K weighting by 0.3–16 %.)
+    np.testing.assert_allclose(got, expected, rtol=1e-9)
+
+
+def test_tau_knots_make_the_gravity_abundance_degeneracy_exact():
+    # grey absorbers and no continuum: the spectrum depends on T(τ) only, so scaling every abundance
+    # (or g) leaves it unchanged with tau-knots — up to where the fixed pressure levels fall in τ —
+    # but not with knots at fixed pressures (common practice, no source)
+    species = ["H2O", "CH4"]
+    opac = OpacitySet.from_tables({"H2O": grey_table("H2O", WL, -21.0), "CH4": grey_table("CH4", WL, -21.5)})
+    temps = {"t_knot_0": 700.0, "t_knot_1": 1000.0, "t_knot_2": 1700.0, "t_knot_3": 2600.0}
+    a = base_params(species, log_g=4.0, log_vmr_H2O=-4.0, log_vmr_CH4=-4.5, **temps)
+    b = {**a, "log_vmr_H2O": -3.2, "log_vmr_CH4": -3.7}
+    model = _tau_knots_model(opac, species, layers=200)
+    fa, fb = model.evaluate(a).flux_highres, model.evaluate(b).flux_highres
+    np.testing.assert_allclose(fb, fa, rtol=2e-3)
+    pressure_knots = ForwardModel(ModelSpec.from_mapping(
+        {"absorbers": species, "profile": "knots", "knot_pressures_bar": [1e-4, 1e-2, 1.0, 100.0], "layers": 200,
+         **NO_CONTINUUM}), [], opac)
+    ga, gb = pressure_knots.evaluate(a).flux_highres, pressure_knots.evaluate(b).flux_highres
+    assert np.max(np.abs(gb / ga - 1.0)) > 0.05

@@ -14,7 +14,7 @@ from collections.abc import Mapping, Sequence
 
 import numpy as np
 
-from ..constants import BAR_TO_DYN_CM2
+from ..constants import AMU_CGS, BAR_TO_DYN_CM2
 from ..errors import ConfigError
 
 
@@ -29,6 +29,13 @@ class TPProfile:
     @classmethod
     def from_options(cls, options: Mapping, where: str) -> "TPProfile":
         return cls()
+
+    def bind(self, model) -> None:
+        """Called once by the forward model after its opacities are set up.
+
+        Profiles defined in terms of the model's own opacity (``tau-knots``)
+        take what they need here; the others ignore it.
+        """
 
     def temperature(self, pressure_bar: np.ndarray, params: Mapping[str, float]) -> np.ndarray:
         raise NotImplementedError
@@ -92,6 +99,15 @@ def _float_list(options: Mapping, key: str, where: str, minimum: int, what: str 
     if arr.size < minimum or np.any(~np.isfinite(arr)) or np.any(arr <= 0) or np.any(np.diff(arr) <= 0):
         raise ConfigError(f"{where}: key {key!r} must hold at least {minimum} positive, strictly ascending {what.split(' in ')[0]}")
     return arr
+
+
+def _trapezoid_weights(x: np.ndarray) -> np.ndarray:
+    """Weights w with w @ f = the trapezoid-rule integral of f over x."""
+    w = np.zeros_like(x, dtype=np.float64)
+    h = np.diff(x)
+    w[:-1] += 0.5 * h
+    w[1:] += 0.5 * h
+    return w
 
 
 def pchip_slopes(x: np.ndarray, y: np.ndarray) -> np.ndarray:
@@ -202,6 +218,84 @@ class ColumnKnotsProfile(TPProfile):
         return pchip_evaluate(x, y, pchip_slopes(x, y), np.log10(pressure_bar))
 
 
+class OpticalDepthKnotsProfile(TPProfile):
+    """Free temperatures ``t_knot_i`` at fixed grey optical depths ``knot_optical_depths``.
+
+    The grey optical depth above a level is τ = κ̄ P / g with the grey mass
+    opacity κ̄ = Σ_i x_i σ̄_i / (μ m_u) of the free-chemistry absorbers
+    (vertically constant VMRs x_i, mean molecular weight μ).  σ̄_i is each
+    absorber's Planck-weighted mean cross section over the model's wavelength
+    grid at ``REFERENCE_T_K`` and the level nearest ``REFERENCE_P_BAR`` (a
+    fixed number per species, computed once in :meth:`bind`).  The knots
+    therefore sit at P_k = τ_k g / κ̄ and move with gravity and abundances;
+    interpolation as in the ``knots`` profile (PCHIP in log P, constant beyond
+    the end knots).
+
+    Why: T as a function of optical depth is what an emission spectrum
+    measures (the classical T(τ) relation, e.g. Mihalas 1978, *Stellar
+    Atmospheres*, ch. 3).  Scaling every abundance by a factor a, or g by 1/a,
+    leaves the molecular τ(P) profile unchanged up to a shift in log P, so
+    with knots at fixed pressures the posterior follows that shift along a
+    long curved ridge in (log g, log x, T_knots).  With knots at fixed τ the
+    same degeneracy is a straight line in (log g, log x) with the knot
+    temperatures fixed.  κ̄ is a coordinate, not the model's opacity: the
+    spectrum is computed with the full opacity as for every other profile.
+    """
+
+    name = "tau-knots"
+    option_keys = ("knot_optical_depths",)
+    REFERENCE_T_K = 1500.0
+    REFERENCE_P_BAR = 1.0
+
+    def __init__(self, knot_optical_depths: Sequence[float]):
+        self.knot_optical_depths = np.asarray(knot_optical_depths, dtype=np.float64)
+        self._log_tau = np.log10(self.knot_optical_depths)
+        self._knots = [f"t_knot_{i}" for i in range(self._log_tau.size)]
+        self.parameter_names = self._knots + ["log_g"]
+        self._chemistry = None
+        self._sigma = None
+
+    @classmethod
+    def from_options(cls, options, where):
+        return cls(_float_list(options, "knot_optical_depths", where, minimum=2, what="optical depths"))
+
+    def bind(self, model) -> None:
+        from ..radiative_transfer import planck_lambda
+
+        self._chemistry = model.chemistry
+        wl = model.wavelength_um
+        t_lo, t_hi = model.molecular.t_range
+        t_ref = min(max(self.REFERENCE_T_K, t_lo), t_hi)
+        level = int(np.argmin(np.abs(np.log(model.pressure_bar / self.REFERENCE_P_BAR))))
+        sigma = np.array(model.molecular.cross_sections(np.full(model.pressure_bar.size, t_ref))[level],
+                         dtype=np.float64)                                   # (n_species, n_w[, n_g])
+        if sigma.ndim == 3:
+            sigma = sigma @ model.g_weights
+        weight = planck_lambda(wl, t_ref) * _trapezoid_weights(wl)
+        self._sigma = sigma @ (weight / weight.sum())
+
+    def reference_cross_sections(self) -> dict[str, float]:
+        """σ̄ per absorber (cm² molecule⁻¹), after :meth:`bind`."""
+        return dict(zip(self._chemistry.absorbers, self._sigma.tolist()))
+
+    def grey_opacity(self, params: Mapping[str, float]) -> float:
+        """κ̄ in cm² g⁻¹ for the abundances in ``params``."""
+        if self._sigma is None:
+            raise RuntimeError("tau-knots profile used before bind(model)")
+        comp = self._chemistry.evaluate(params, 1)
+        return float(comp.absorber_vmr @ self._sigma) / (float(comp.mmw_amu[0]) * AMU_CGS)
+
+    def knot_pressures_for(self, params: Mapping[str, float]) -> np.ndarray:
+        """Knot pressures (bar) for the gravity and abundances in ``params``."""
+        log_m = self._log_tau - np.log10(self.grey_opacity(params))          # column mass, g cm⁻²
+        return 10.0 ** (log_m + float(params["log_g"])) / BAR_TO_DYN_CM2
+
+    def temperature(self, pressure_bar, params):
+        y = np.array([params[n] for n in self._knots], dtype=np.float64)
+        x = np.log10(self.knot_pressures_for(params))
+        return pchip_evaluate(x, y, pchip_slopes(x, y), np.log10(pressure_bar))
+
+
 class GradientProfile(TPProfile):
     """T at the deepest level (``t_deep``) and constant d ln T / d ln P per band.
 
@@ -250,7 +344,8 @@ class GradientProfile(TPProfile):
 
 #: ``[model] profile`` name -> profile class; add new profiles here (see DEVELOPERS.md).
 PROFILES: dict[str, type[TPProfile]] = {
-    cls.name: cls for cls in (IsothermalProfile, GuillotProfile, KnotsProfile, ColumnKnotsProfile, GradientProfile)
+    cls.name: cls for cls in (IsothermalProfile, GuillotProfile, KnotsProfile, ColumnKnotsProfile,
+                                OpticalDepthKnotsProfile, GradientProfile)
 }
 
 
