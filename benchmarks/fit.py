@@ -64,8 +64,11 @@ GRADIENT_PRIORS = {**{k: v for k, v in PRIORS.items() if not k.startswith("t_kno
 # round columns sit at the pressures of KNOTS_BAR when log g = 4 (m = P / g), i.e. at 1.6× those
 # pressures for the truth's log g = 4.2.  The data are simulated with this profile.
 KNOT_COLUMNS_G_CM2 = [p * 1e6 / 1e4 for p in KNOTS_BAR]
+# ... and at fixed grey optical depth τ = κ̄ P / g, the "tau-knots" profile: the round depths sit at
+# 0.35× the pressures of KNOTS_BAR for the truth's gravity and abundances (κ̄ = 0.45 cm² g⁻¹ there).
+KNOT_OPTICAL_DEPTHS = [1e-3, 0.1, 10.0, 100.0, 1000.0]
 PROFILES = {"knots": (TRUTH, PRIORS), "gradient": (GRADIENT_TRUTH, GRADIENT_PRIORS),
-            "column-knots": (TRUTH, PRIORS)}
+            "column-knots": (TRUTH, PRIORS), "tau-knots": (TRUTH, PRIORS)}
 
 
 def _tables(folder: Path) -> str:
@@ -88,6 +91,8 @@ def _model_table(opacity_dir: str, layers: int, profile: str = "knots") -> dict:
          "hminus": True, "rayleigh": True, "layers": layers, "angles": 4}
     if profile == "column-knots":
         m["knot_columns_g_cm2"] = KNOT_COLUMNS_G_CM2
+    elif profile == "tau-knots":
+        m["knot_optical_depths"] = KNOT_OPTICAL_DEPTHS
     else:
         m["knot_pressures_bar" if profile == "knots" else "gradient_pressures_bar"] = KNOTS_BAR
     if opacity_dir:
