@@ -66,10 +66,12 @@ BAD = {
                       "did you mean 'differential-evolution'?"),
     "bad-moves": (_edit("max_steps = 200", 'max_steps = 200\nmoves = "strech"'), "did you mean 'stretch'?"),
     "mixture-without-pilot": (_edit("max_steps = 200", 'max_steps = 200\nmoves = "pilot-mixture"'),
-                              'moves = "pilot-mixture" needs a pilot run; add pilot = "nested"'),
+                              'moves = "pilot-mixture" needs a pilot run; add pilot = "chain" or pilot = "nested"'),
     "bad-pilot": (_edit("max_steps = 200", 'max_steps = 200\npilot = "nestd"'), "did you mean 'nested'?"),
     "few-pilot-points": (_edit("max_steps = 200", 'max_steps = 200\npilot = "nested"\npilot_live_points = 5'),
                          "'pilot_live_points' must be >= 10, got 5"),
+    "short-pilot-chain": (_edit("max_steps = 200", 'max_steps = 200\npilot = "chain"\npilot_steps = 1'),
+                          "'pilot_steps' must be >= 2, got 1"),
     "no-free-parameter": ("[parameters]\nlog_g = 4.0\n", "no free parameter"),
     "not-toml": ("[parameters\nlog_g = 4.0\n", "not valid TOML"),
 }

@@ -150,6 +150,54 @@ def test_resume_reuses_the_frozen_mixture(linear_data, tmp_path):
     assert part.pilot["likelihood_calls"] == full.pilot["likelihood_calls"]
 
 
+def _chain_config(path, **sampler):
+    return _config(path, **{"pilot": "chain", "pilot_steps": 300, **sampler})
+
+
+def test_chain_pilot_mixture_recovers_the_analytic_posterior(linear_data, tmp_path):
+    path, y = linear_data
+    factory = LinearModelFactory(N_COEF)
+    res = fit(_chain_config(path), out_dir=tmp_path / "run", model_factory=factory)
+    m_n, s_n, _ = analytic_posterior(y)          # Bishop (2006) eqs. 3.53–3.54
+    assert res.converged
+    samples = np.column_stack([res.samples[f"coef_{k}"] for k in range(N_COEF)])
+    n_eff = (res.n_steps - res.burn_in) * res.n_walkers / np.max(res.tau)
+    assert np.all(np.abs(samples.mean(0) - m_n) < 4 * np.sqrt(np.diag(s_n) / n_eff))
+    np.testing.assert_allclose(samples.var(0), np.diag(s_n), rtol=4 * np.sqrt(2 / n_eff), atol=0)
+    assert np.max(res.tau) < 10            # independence draws from a good mixture decorrelate fast
+    from retrieve.inference import load_run
+    from retrieve.report.build import report_content
+    run = load_run(tmp_path / "run", model_factory=factory)
+    pilot = run.manifest["pilot"]
+    assert pilot["steps"] == 300 and pilot["mixture_components"] >= 1 and "ln_z" not in pilot
+    # every pilot step costs one call per walker; the optimiser's calls are not counted in it
+    assert pilot["likelihood_calls"] == 300 * res.n_walkers
+    notes = report_content(run, figures=()).notes
+    assert any("preliminary 300-step chain" in n and "not part of the posterior sample" in n for n in notes)
+
+
+def test_chain_pilot_is_reproducible_independent_of_workers_and_resumable(linear_data, tmp_path):
+    path, _ = linear_data
+    factory = LinearModelFactory(N_COEF)
+    cfg = _chain_config(path, max_steps=200, check_every=100, tau_factor=1e9)
+    chains = []
+    for name, workers in (("a", 1), ("b", 1), ("c", 2)):
+        fit(cfg, out_dir=tmp_path / name, model_factory=factory, workers=workers)
+        chains.append(read_checkpoint(tmp_path / name / "chain.h5"))
+    assert np.array_equal(chains[0].chain, chains[1].chain)
+    assert np.array_equal(chains[0].chain, chains[2].chain)
+    fit(_chain_config(path, max_steps=200, check_every=100, tau_factor=1e9, seed=2), out_dir=tmp_path / "d",
+        model_factory=factory)
+    assert not np.array_equal(chains[0].chain, read_checkpoint(tmp_path / "d" / "chain.h5").chain)
+    # killed after the first checkpoint and resumed: the chain of the uninterrupted run, same frozen mixture
+    fit(_chain_config(path, max_steps=100, check_every=100, tau_factor=1e9), out_dir=tmp_path / "part",
+        model_factory=factory)
+    fit(cfg, out_dir=tmp_path / "part", resume=True, model_factory=factory)
+    part = read_checkpoint(tmp_path / "part" / "chain.h5")
+    assert np.array_equal(part.chain, chains[0].chain)
+    np.testing.assert_array_equal(part.proposal.means, chains[0].proposal.means)
+
+
 class _SquareModel:
     """m(λ) = c0² + c1 (λ − 1): c0 and −c0 predict the same spectrum, so the posterior has two mirror modes."""
 

@@ -48,11 +48,12 @@ SAMPLER_TYPES = {
     "optimiser_max_evaluations": int, "optimiser_popsize": int, "ball_scale": (int, float),
     "predictive_draws": int, "progress": bool, "moves": str, "ball": str,
     "polish_max_evaluations": int, "polish_candidates": int,
-    "pilot": str, "pilot_live_points": int, "pilot_dlogz": (int, float), "mixture_components": int,
+    "pilot": str, "pilot_live_points": int, "pilot_dlogz": (int, float), "pilot_steps": int,
+    "mixture_components": int,
 }
 BALLS = ("hessian", "fixed")
 OPTIMISERS = ("differential-evolution", "none")
-PILOTS = ("none", "nested")
+PILOTS = ("none", "nested", "chain")
 # Parameters that are temperatures somewhere in the atmosphere (checked against table coverage).
 _TEMPERATURE = re.compile(r"^(t_iso|t_deep|t_knot_\d+)$")
 
@@ -279,10 +280,13 @@ def _sampler(table: Mapping, where: str) -> SamplerSettings:
         raise ConfigError(f"{where}: 'pilot_live_points' must be >= 10, got {values['pilot_live_points']}")
     if "pilot_dlogz" in values and not values["pilot_dlogz"] > 0:
         raise ConfigError(f"{where}: 'pilot_dlogz' must be > 0, got {values['pilot_dlogz']}")
+    if values.get("pilot_steps", 2) < 2:
+        raise ConfigError(f"{where}: 'pilot_steps' must be >= 2, got {values['pilot_steps']}")
     if values.get("mixture_components", 1) < 1:
         raise ConfigError(f"{where}: 'mixture_components' must be >= 1, got {values['mixture_components']}")
-    if values.get("moves") == "pilot-mixture" and values.get("pilot", "none") != "nested":
-        raise ConfigError(f"{where}: moves = \"pilot-mixture\" needs a pilot run; add pilot = \"nested\"")
+    if values.get("moves") == "pilot-mixture" and values.get("pilot", "none") == "none":
+        raise ConfigError(f"{where}: moves = \"pilot-mixture\" needs a pilot run; add pilot = \"chain\" "
+                          f"or pilot = \"nested\"")
     return SamplerSettings(**values)
 
 

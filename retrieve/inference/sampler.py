@@ -22,6 +22,13 @@ Steps
    distinct points of its equal-weight posterior sample, and a Gaussian
    mixture fitted to that sample (:mod:`retrieve.inference.mixture`) is
    frozen as the independence proposal of ``moves = "pilot-mixture"``.
+   With ``pilot = "chain"`` steps 1–2 run as usual and are followed by a
+   preliminary chain of ``pilot_steps`` steps with the
+   ``"differential-evolution"`` moves (its own generator stream, never part
+   of the result); the walkers continue from where it ends and the mixture
+   is fitted to its second half.  Much cheaper than a nested pilot when the
+   optimiser already finds the posterior's bulk, but it cannot discover a
+   mode the preliminary chain never reaches.
 3. :class:`emcee.EnsembleSampler` (moves of :mod:`retrieve.inference.moves`) run in
    chunks of ``check_every`` steps.  After each chunk: τ estimate (after the
    start-up discard of :func:`~retrieve.inference.convergence.tau_discard`),
@@ -93,6 +100,7 @@ class SamplerSettings:
     pilot: str = "none"
     pilot_live_points: int = 200
     pilot_dlogz: float = 1.0
+    pilot_steps: int = 1500
     mixture_components: int = 16
 
     def n_walkers(self, ndim: int) -> int:
@@ -416,15 +424,45 @@ def _pilot_start(posterior, settings: SamplerSettings, evaluator: EvaluationMap,
         if not np.all(np.isfinite(lp)):
             raise UserError("the nested-sampling pilot found too few points with a finite posterior; "
                             "check the model or raise pilot_live_points")
-    proposal = None
-    if settings.moves in NEEDS_MIXTURE:
-        counts = tuple(k for k in (1, 2, 4, 8, 12, 16, 24, 32) if k <= max(1, settings.mixture_components))
-        mix = fit_mixture(pilot.samples, rng, components=counts)
-        proposal = defensive(mix, pilot.samples)
+    proposal = _proposal_mixture(pilot.samples, settings, rng) if settings.moves in NEEDS_MIXTURE else None
     summary = pilot.summary()
     if proposal is not None:
         summary["mixture_components"] = proposal.n_components - 1
     return pos, lp, proposal, summary
+
+
+def _proposal_mixture(samples: np.ndarray, settings: SamplerSettings, rng: np.random.Generator):
+    """The defensive mixture fitted to ``samples``: the frozen proposal of ``pilot-mixture``."""
+    counts = tuple(k for k in (1, 2, 4, 8, 12, 16, 24, 32) if k <= max(1, settings.mixture_components))
+    return defensive(fit_mixture(samples, rng, components=counts), samples)
+
+
+def _pilot_chain(posterior, settings: SamplerSettings, evaluator: EvaluationMap, pos, lp, seed: int,
+                 rng: np.random.Generator, progress: bool = False):
+    """Preliminary DE-moves chain from ``pos``: its final walkers, their ln p, the mixture and a summary."""
+    n_walkers, ndim = pos.shape
+    calls_before = evaluator.n_evaluations
+    sampler = emcee.EnsembleSampler(n_walkers, ndim, posterior, pool=evaluator,
+                                    moves=make_moves("differential-evolution"))
+    state = emcee.State(pos, log_prob=lp, random_state=np.random.RandomState(seed).get_state())
+    bar = _progress_bar(progress, settings.pilot_steps, 0, "pilot chain")
+    try:
+        for state in sampler.sample(state, iterations=settings.pilot_steps, store=True):
+            if bar is not None:
+                bar.update(1)
+    finally:
+        if bar is not None:
+            bar.close()
+    chain = sampler.get_chain()
+    samples = chain[chain.shape[0] // 2:].reshape(-1, ndim)
+    proposal = _proposal_mixture(samples, settings, rng) if settings.moves in NEEDS_MIXTURE else None
+    summary = {"method": "preliminary differential-evolution chain", "steps": int(settings.pilot_steps),
+               "likelihood_calls": int(evaluator.n_evaluations - calls_before),
+               "distinct_samples": int(np.unique(samples, axis=0).shape[0]),
+               "acceptance": float(np.mean(sampler.acceptance_fraction))}
+    if proposal is not None:
+        summary["mixture_components"] = proposal.n_components - 1
+    return state.coords.copy(), state.log_prob.copy(), proposal, summary
 
 
 def start_state(posterior, settings: SamplerSettings, evaluator: EvaluationMap,
@@ -450,6 +488,10 @@ def start_state(posterior, settings: SamplerSettings, evaluator: EvaluationMap,
             cov = laplace_covariance(evaluator, best, prior_bounds(posterior.priors))
         pos, lp = initial_ball(best, posterior.priors, n_walkers, settings.ball_scale, rng, evaluator,
                                covariance=cov)
+    if settings.pilot == "chain":
+        pilot_seed = int(np.random.SeedSequence([int(settings.seed), 1]).generate_state(1)[0])
+        pos, lp, proposal, pilot = _pilot_chain(posterior, settings, evaluator, pos, lp, pilot_seed, rng, progress)
+        return StartState(pos, lp, random_state, proposal, pilot)
     return StartState(pos, lp, random_state)
 
 
@@ -564,8 +606,8 @@ def run_sampler(posterior, settings: SamplerSettings, checkpoint_path, workers: 
             sampling_s=time.perf_counter() - t_sampling, resumed_from=resumed_from, pilot=dict(pilot))
 
 
-def _progress_bar(show: bool, total: int, initial: int):
+def _progress_bar(show: bool, total: int, initial: int, desc: str = "sampling"):
     if not show:
         return None
     from tqdm.auto import tqdm
-    return tqdm(total=total, initial=initial, desc="sampling", unit="step", dynamic_ncols=True)
+    return tqdm(total=total, initial=initial, desc=desc, unit="step", dynamic_ncols=True)
