@@ -130,7 +130,8 @@ def simulate(folder: Path, opacity_dir: str, layers: int, seed: int = 1,
 
 
 def config_text(opacity_dir: str, layers: int, ifs_sigma: float, max_steps: int, seed: int,
-                moves: str = "stretch", check_every: int = 50, profile: str = "knots") -> str:
+                moves: str = "stretch", check_every: int = 50, profile: str = "knots",
+                pilot: str = "chain", pilot_steps: int = 1500) -> str:
     def val(v):
         return json.dumps(v)
     lines = ["[object]", 'name = "benchmark"', "", "[model]"]
@@ -145,7 +146,9 @@ def config_text(opacity_dir: str, layers: int, ifs_sigma: float, max_steps: int,
               "", "[sampler]", f"max_steps = {max_steps}", f"check_every = {check_every}", f"seed = {seed}",
               f'moves = "{moves}"']
     if moves == "pilot-mixture":
-        lines.append('pilot = "nested"')
+        lines.append(f'pilot = "{pilot}"')
+        if pilot == "chain":
+            lines.append(f"pilot_steps = {pilot_steps}")
     return "\n".join(lines) + "\n"
 
 
@@ -159,6 +162,9 @@ def main(argv=None) -> int:
                     choices=("stretch", "differential-evolution", "pilot-mixture"),
                     help="emcee proposal ([sampler] moves); pilot-mixture adds pilot = \"nested\"; "
                          "the local moves alone mix slowly along this posterior's gravity–abundance ridge")
+    ap.add_argument("--pilot", default="chain", choices=("chain", "nested"),
+                    help="with --moves pilot-mixture: the run the proposal mixture is fitted to")
+    ap.add_argument("--pilot-steps", type=int, default=1500, help="[sampler] pilot_steps for --pilot chain")
     ap.add_argument("--check-every", type=int, default=50,
                     help="[sampler] check_every: steps between τ checks (the 1 %% stability test "
                          "compares consecutive checks)")
@@ -179,14 +185,15 @@ def main(argv=None) -> int:
         sigma = float(np.median(read_dataset(ifs).uncertainty))
         cfg = tmp / "fit.toml"
         cfg.write_text(config_text(opacity_dir, args.layers, sigma, args.max_steps, args.seed, args.moves,
-                                  args.check_every, args.profile))
+                                  args.check_every, args.profile, args.pilot, args.pilot_steps))
         out = Path(args.keep) if args.keep else tmp / "run"
         t0 = time.perf_counter()
         res = fit(cfg, out_dir=out, workers=args.workers, overwrite=bool(args.keep))
         wall = time.perf_counter() - t0
         manifest = json.loads((out / "manifest.json").read_text())
         print(f"opacity: {source}")
-        print(f"moves: {args.moves}; profile: {args.profile}; layers: {args.layers}")
+        print(f"moves: {args.moves}; profile: {args.profile}; layers: {args.layers}"
+              + (f"; pilot: {args.pilot}" if args.moves == "pilot-mixture" else ""))
         print(f"free parameters: {len(manifest['param_names'])} ({', '.join(manifest['param_names'])})")
         print(f"{'converged' if res.converged else 'NOT converged'} after {res.n_steps} steps x {res.n_walkers} "
               f"walkers; tau max {np.max(res.tau):.1f}; acceptance {res.acceptance_fraction:.2f}")
