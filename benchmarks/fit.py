@@ -1,25 +1,29 @@
 """Benchmark of a standard free retrieval, from start to convergence.
 
-Standard case: 11 free parameters — 5 T–P knots (1e-4 … 100 bar), log g,
-radius, log VMRs of H2O, CH4 and CO, and one error-inflation term — fitted to
-a simulated 40-channel spectrum at R ≈ 40 over 0.95–1.8 µm plus three
-photometric points (2MASS J, H, Ks), distance fixed.  The data are simulated
-with the same forward model (80 levels, H2-H2 + H2-He CIA, H⁻, 4 angles) and
-Gaussian noise (S/N 20 per channel, 5 % photometry).
+Standard case: 11 free parameters — 5 T–P knots, log g, radius, log VMRs of
+H2O, CH4 and CO, and one error-inflation term — fitted to a simulated
+40-channel spectrum at R ≈ 40 over 0.95–1.8 µm plus three photometric points
+(2MASS J, H, Ks), distance fixed.  The data are simulated with the same
+forward model and profile (80 levels, H2-H2 + H2-He CIA, H⁻, 4 angles) and
+Gaussian noise (S/N 20 per channel and per photometric point).
+
+The five knots (``--profile``) sit at fixed grey optical depths 1e-3 … 1e3
+(``tau-knots``, the default), at fixed column masses (``column-knots``), at
+fixed pressures 1e-4 … 100 bar (``knots``), or are expressed as T(100 bar)
+plus four gradients d ln T / d ln P (``gradient``).
 
 Prints the wall time to convergence (the engine's rule: chain longer than
 50 τ and τ stable to 1 %, checked every ``--check-every`` steps), the number
-of steps, τ, posterior evaluations per second and, with the default
-``--moves pilot-mixture`` (which adds ``pilot = "nested"``), the size of the
-nested-sampling pilot.  ``--profile gradient`` expresses the same five T–P
-degrees of freedom as T(100 bar) and four gradients d ln T / d ln P.
+of steps, τ, posterior evaluations per second and, with ``--moves
+pilot-mixture``, the size of the pilot (``--pilot chain`` or ``nested``).
 
 Uses the bundled tables in ``opacity_tables/`` when all are present; until
 then it builds the synthetic random-but-smooth tables of
 ``benchmarks/forward_model.py`` in a temporary folder and says so.
 
-Run: ``python benchmarks/fit.py [--workers 2] [--max-steps 40000] [--moves pilot-mixture]
-[--check-every 50] [--profile knots] [--keep RUN_DIR]``.
+Run: ``python benchmarks/fit.py [--workers 2] [--max-steps 40000]
+[--moves differential-evolution|stretch|pilot-mixture] [--pilot chain|nested]
+[--check-every 50] [--profile tau-knots|column-knots|knots|gradient] [--keep RUN_DIR]``.
 """
 from __future__ import annotations
 
@@ -158,9 +162,9 @@ def main(argv=None) -> int:
     ap.add_argument("--max-steps", type=int, default=40000)
     ap.add_argument("--layers", type=int, default=80)
     ap.add_argument("--seed", type=int, default=0)
-    ap.add_argument("--moves", default="pilot-mixture",
+    ap.add_argument("--moves", default="differential-evolution",
                     choices=("stretch", "differential-evolution", "pilot-mixture"),
-                    help="emcee proposal ([sampler] moves); pilot-mixture adds pilot = \"nested\"; "
+                    help="emcee proposal ([sampler] moves); pilot-mixture adds a pilot (--pilot); "
                          "the local moves alone mix slowly along this posterior's gravity–abundance ridge")
     ap.add_argument("--pilot", default="chain", choices=("chain", "nested"),
                     help="with --moves pilot-mixture: the run the proposal mixture is fitted to")
@@ -168,9 +172,10 @@ def main(argv=None) -> int:
     ap.add_argument("--check-every", type=int, default=50,
                     help="[sampler] check_every: steps between τ checks (the 1 %% stability test "
                          "compares consecutive checks)")
-    ap.add_argument("--profile", default="knots", choices=tuple(PROFILES),
-                    help="T–P parametrisation of the 5 T–P parameters: free knot temperatures or "
-                         "T(100 bar) + 4 gradients d ln T / d ln P")
+    ap.add_argument("--profile", default="tau-knots", choices=tuple(PROFILES),
+                    help="T–P parametrisation of the 5 T–P parameters: knot temperatures at fixed grey "
+                         "optical depths (tau-knots), column masses (column-knots) or pressures (knots), "
+                         "or T(100 bar) + 4 gradients d ln T / d ln P (gradient)")
     ap.add_argument("--keep", metavar="RUN_DIR", help="write the run folder here (default: a temporary folder)")
     args = ap.parse_args(argv)
     from retrieve.inference import fit
