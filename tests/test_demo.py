@@ -168,4 +168,7 @@ def test_example_spectra_are_reproduced_by_simulate(project_root):
     comp = sc.COMPANIONS[1]
     result = load_and_simulate(project_root / "examples" / f"{comp.slug}_simulate.toml")
     stored = read_dataset(project_root / "examples" / f"{comp.slug}_ifs.ecsv")
-    np.testing.assert_allclose(result.datasets[0].flux, stored.flux, rtol=1e-12)
+    # the model mixes cross sections in float32 (forward_model._kappa) and numpy/BLAS pick their
+    # kernels by CPU, so summation order and last bits differ between machines: files written on
+    # one machine were reproduced to 2.5e-9 on another (AVX2 only); same machine: exact
+    np.testing.assert_allclose(result.datasets[0].flux, stored.flux, rtol=1e-7)

@@ -19,6 +19,7 @@ Use a smaller ``fine_resolution`` where that matters.
 from __future__ import annotations
 
 import dataclasses
+import math
 
 import numpy as np
 
@@ -90,7 +91,10 @@ class BuildGrid:
         lo, hi = self.wavelength_range_um
         step = np.log1p(1.0 / self.resolving_power)
         n = int(np.ceil(np.log(hi / lo) / step - 1e-9))
-        return lo * np.exp(step * np.arange(n + 1))
+        # math.exp (the C library's exp), not np.exp: numpy picks its exp kernel by CPU (AVX2,
+        # AVX-512, …) and those differ in the last bit, which would make rebuilt tables differ
+        # between machines; the C library's result does not depend on numpy's dispatch
+        return lo * np.array([math.exp(step * i) for i in range(n + 1)])
 
     def output_wavelengths(self) -> np.ndarray:
         """Bin centres in µm (geometric mean of the edges)."""
