@@ -50,8 +50,7 @@ class ModelSpec:
         Key of :data:`retrieve.atmosphere.profiles.PROFILES`.
     profile_options : dict
         Profile-specific keys (``knot_pressures_bar``, ``knot_columns_g_cm2``, ``knot_optical_depths``,
-        ``gradient_pressures_bar``,
-        ``guillot_f``).
+        ``gradient_pressures_bar``, ``guillot_f``).
     cia : list of str
         Collision pairs, default ``["H2-H2", "H2-He"]``.
     hminus, rayleigh : bool

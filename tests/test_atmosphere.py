@@ -118,7 +118,7 @@ def test_column_knots_sit_at_fixed_column_mass():
     assert prof.parameter_names == ["t_knot_0", "t_knot_1", "t_knot_2", "log_g"]
     temps = {"t_knot_0": 700.0, "t_knot_1": 1300.0, "t_knot_2": 2400.0}
     for log_g in (3.0, 4.3, 5.5):
-        knots_p = prof.knot_pressures_for(log_g)
+        knots_p = prof.knot_pressures_for({"log_g": log_g})
         # hydrostatic column above each knot pressure is the knot's column (m = P / g, Mihalas 1978 §7-2)
         np.testing.assert_allclose(column_mass(knots_p, 10.0 ** log_g), columns, rtol=1e-12)
         # same curve as a pressure-knots profile placed at those pressures
@@ -126,7 +126,7 @@ def test_column_knots_sit_at_fixed_column_mass():
         np.testing.assert_allclose(prof.temperature(p, {**temps, "log_g": log_g}),
                                    KnotsProfile(knots_p).temperature(p, temps), rtol=1e-12)
     # at log g = 4, 100 g cm⁻² is 1 bar (100 × 1e4 dyn cm⁻² = 1e6 dyn cm⁻²; unit arithmetic)
-    assert prof.knot_pressures_for(4.0)[1] == pytest.approx(1.0, rel=1e-12, abs=0.0)
+    assert prof.knot_pressures_for({"log_g": 4.0})[1] == pytest.approx(1.0, rel=1e-12, abs=0.0)
     # raising g by 1 dex moves the whole profile to 10× the pressure: T(P) at g' = T(P / 10) at g
     p = np.logspace(-3, 1, 30)
     np.testing.assert_allclose(prof.temperature(10.0 * p, {**temps, "log_g": 5.0}),

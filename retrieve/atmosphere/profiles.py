@@ -88,16 +88,17 @@ class GuillotProfile(TPProfile):
         return np.sqrt(np.sqrt(t4))
 
 
-def _float_list(options: Mapping, key: str, where: str, minimum: int, what: str = "pressures in bar") -> np.ndarray:
+def _float_list(options: Mapping, key: str, where: str, minimum: int, noun: str = "pressures",
+                unit: str = " in bar") -> np.ndarray:
     value = options.get(key)
     if value is None:
-        raise ConfigError(f"{where}: profile needs key {key!r} (list of {what})")
+        raise ConfigError(f"{where}: profile needs key {key!r} (list of {noun}{unit})")
     if not isinstance(value, (list, tuple)) or not all(
             isinstance(v, (int, float)) and not isinstance(v, bool) for v in value):
         raise ConfigError(f"{where}: key {key!r} must be a list of numbers, got {value!r}")
     arr = np.asarray(value, dtype=np.float64)
     if arr.size < minimum or np.any(~np.isfinite(arr)) or np.any(arr <= 0) or np.any(np.diff(arr) <= 0):
-        raise ConfigError(f"{where}: key {key!r} must hold at least {minimum} positive, strictly ascending {what.split(' in ')[0]}")
+        raise ConfigError(f"{where}: key {key!r} must hold at least {minimum} positive, strictly ascending {noun}")
     return arr
 
 
@@ -150,13 +151,34 @@ def pchip_evaluate(x: np.ndarray, y: np.ndarray, m: np.ndarray, xq: np.ndarray) 
             + (-2 * t3 + 3 * t2) * y[k + 1] + (t3 - t2) * h * m[k + 1])
 
 
-class KnotsProfile(TPProfile):
-    """Free temperatures ``t_knot_i`` at ``knot_pressures_bar``.
+class _KnotTemperatures(TPProfile):
+    """Free temperatures ``t_knot_i`` at knots placed by :meth:`knot_log_pressures`.
 
     Monotone piecewise-cubic (PCHIP, Fritsch–Carlson) interpolation in log10 P,
     so the profile never overshoots the knot temperatures; constant beyond the
-    first and last knot.
+    first and last knot.  Subclasses say where the knots sit.
     """
+
+    def _name_knots(self, n: int, extra: Sequence[str] = ()) -> None:
+        self._knots = [f"t_knot_{i}" for i in range(n)]
+        self.parameter_names = self._knots + list(extra)
+
+    def knot_log_pressures(self, params: Mapping[str, float]) -> np.ndarray:
+        """log10 of the knot pressures (bar), ascending."""
+        raise NotImplementedError
+
+    def knot_pressures_for(self, params: Mapping[str, float]) -> np.ndarray:
+        """Knot pressures (bar) for ``params``."""
+        return 10.0 ** self.knot_log_pressures(params)
+
+    def temperature(self, pressure_bar, params):
+        y = np.array([params[n] for n in self._knots], dtype=np.float64)
+        x = self.knot_log_pressures(params)
+        return pchip_evaluate(x, y, pchip_slopes(x, y), np.log10(pressure_bar))
+
+
+class KnotsProfile(_KnotTemperatures):
+    """Free temperatures ``t_knot_i`` at ``knot_pressures_bar`` (interpolation: :class:`_KnotTemperatures`)."""
 
     name = "knots"
     option_keys = ("knot_pressures_bar",)
@@ -164,19 +186,17 @@ class KnotsProfile(TPProfile):
     def __init__(self, knot_pressures_bar: Sequence[float]):
         self.knot_pressures_bar = np.asarray(knot_pressures_bar, dtype=np.float64)
         self._x = np.log10(self.knot_pressures_bar)
-        self.parameter_names = [f"t_knot_{i}" for i in range(self._x.size)]
+        self._name_knots(self._x.size)
 
     @classmethod
     def from_options(cls, options, where):
         return cls(_float_list(options, "knot_pressures_bar", where, minimum=2))
 
-    def temperature(self, pressure_bar, params):
-        y = np.array([params[n] for n in self.parameter_names], dtype=np.float64)
-        m = pchip_slopes(self._x, y)
-        return pchip_evaluate(self._x, y, m, np.log10(pressure_bar))
+    def knot_log_pressures(self, params):
+        return self._x
 
 
-class ColumnKnotsProfile(TPProfile):
+class ColumnKnotsProfile(_KnotTemperatures):
     """Free temperatures ``t_knot_i`` at fixed column masses ``knot_columns_g_cm2``.
 
     The column mass above a level is m = P / g in hydrostatic equilibrium
@@ -201,24 +221,17 @@ class ColumnKnotsProfile(TPProfile):
     def __init__(self, knot_columns_g_cm2: Sequence[float]):
         self.knot_columns_g_cm2 = np.asarray(knot_columns_g_cm2, dtype=np.float64)
         self._log_m = np.log10(self.knot_columns_g_cm2 / BAR_TO_DYN_CM2)   # log10(P_bar) − log_g
-        self._knots = [f"t_knot_{i}" for i in range(self._log_m.size)]
-        self.parameter_names = self._knots + ["log_g"]
+        self._name_knots(self._log_m.size, ["log_g"])
 
     @classmethod
     def from_options(cls, options, where):
-        return cls(_float_list(options, "knot_columns_g_cm2", where, minimum=2, what="column masses in g cm⁻²"))
+        return cls(_float_list(options, "knot_columns_g_cm2", where, minimum=2, noun="column masses", unit=" in g cm⁻²"))
 
-    def knot_pressures_for(self, log_g: float) -> np.ndarray:
-        """Knot pressures (bar) at surface gravity 10^log_g (cgs)."""
-        return 10.0 ** (self._log_m + float(log_g))
-
-    def temperature(self, pressure_bar, params):
-        y = np.array([params[n] for n in self._knots], dtype=np.float64)
-        x = self._log_m + float(params["log_g"])
-        return pchip_evaluate(x, y, pchip_slopes(x, y), np.log10(pressure_bar))
+    def knot_log_pressures(self, params):
+        return self._log_m + float(params["log_g"])
 
 
-class OpticalDepthKnotsProfile(TPProfile):
+class OpticalDepthKnotsProfile(_KnotTemperatures):
     """Free temperatures ``t_knot_i`` at fixed grey optical depths ``knot_optical_depths``.
 
     The grey optical depth above a level is τ = κ̄ P / g with the grey mass
@@ -250,14 +263,13 @@ class OpticalDepthKnotsProfile(TPProfile):
     def __init__(self, knot_optical_depths: Sequence[float]):
         self.knot_optical_depths = np.asarray(knot_optical_depths, dtype=np.float64)
         self._log_tau = np.log10(self.knot_optical_depths)
-        self._knots = [f"t_knot_{i}" for i in range(self._log_tau.size)]
-        self.parameter_names = self._knots + ["log_g"]
+        self._name_knots(self._log_tau.size, ["log_g"])
         self._chemistry = None
         self._sigma = None
 
     @classmethod
     def from_options(cls, options, where):
-        return cls(_float_list(options, "knot_optical_depths", where, minimum=2, what="optical depths"))
+        return cls(_float_list(options, "knot_optical_depths", where, minimum=2, noun="optical depths", unit=""))
 
     def bind(self, model) -> None:
         from ..radiative_transfer import planck_lambda
@@ -285,15 +297,9 @@ class OpticalDepthKnotsProfile(TPProfile):
         comp = self._chemistry.evaluate(params, 1)
         return float(comp.absorber_vmr @ self._sigma) / (float(comp.mmw_amu[0]) * AMU_CGS)
 
-    def knot_pressures_for(self, params: Mapping[str, float]) -> np.ndarray:
-        """Knot pressures (bar) for the gravity and abundances in ``params``."""
+    def knot_log_pressures(self, params):
         log_m = self._log_tau - np.log10(self.grey_opacity(params))          # column mass, g cm⁻²
-        return 10.0 ** (log_m + float(params["log_g"])) / BAR_TO_DYN_CM2
-
-    def temperature(self, pressure_bar, params):
-        y = np.array([params[n] for n in self._knots], dtype=np.float64)
-        x = np.log10(self.knot_pressures_for(params))
-        return pchip_evaluate(x, y, pchip_slopes(x, y), np.log10(pressure_bar))
+        return log_m + float(params["log_g"]) - np.log10(BAR_TO_DYN_CM2)
 
 
 class GradientProfile(TPProfile):
