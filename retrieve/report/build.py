@@ -106,7 +106,7 @@ def report_content(run, figures=run_figures.FIGURES) -> ReportContent:
         notes.append("The chain did not meet the convergence rule (length > tau_factor × τ and τ stable); "
                      "treat the intervals as indicative and run longer (raise [sampler] max_steps or --resume).")
     pilot = run.manifest.get("pilot") or {}
-    if pilot and "ln_z" not in pilot:
+    if pilot and not pilot.get("method", "").startswith("nested"):
         notes.append(f"The walkers continued from a preliminary {pilot.get('steps', 0)}-step chain "
                      f"({pilot.get('likelihood_calls', 0)} likelihood calls, not part of the posterior sample) "
                      "that started near the optimiser's maximum; like the chain itself it may have missed a "
