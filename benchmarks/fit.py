@@ -73,6 +73,10 @@ KNOT_COLUMNS_G_CM2 = [p * 1e6 / 1e4 for p in KNOTS_BAR]
 KNOT_OPTICAL_DEPTHS = [1e-3, 0.1, 10.0, 100.0, 1000.0]
 PROFILES = {"knots": (TRUTH, PRIORS), "gradient": (GRADIENT_TRUTH, GRADIENT_PRIORS),
             "column-knots": (TRUTH, PRIORS), "tau-knots": (TRUTH, PRIORS)}
+#: profile -> the [model] key placing its knots, and its values
+KNOT_OPTIONS = {"knots": ("knot_pressures_bar", KNOTS_BAR), "gradient": ("gradient_pressures_bar", KNOTS_BAR),
+                "column-knots": ("knot_columns_g_cm2", KNOT_COLUMNS_G_CM2),
+                "tau-knots": ("knot_optical_depths", KNOT_OPTICAL_DEPTHS)}
 
 
 def _tables(folder: Path) -> str:
@@ -93,12 +97,8 @@ def _tables(folder: Path) -> str:
 def _model_table(opacity_dir: str, layers: int, profile: str = "knots") -> dict:
     m = {"absorbers": ABSORBERS, "profile": profile, "cia": CIA,
          "hminus": True, "rayleigh": True, "layers": layers, "angles": 4}
-    if profile == "column-knots":
-        m["knot_columns_g_cm2"] = KNOT_COLUMNS_G_CM2
-    elif profile == "tau-knots":
-        m["knot_optical_depths"] = KNOT_OPTICAL_DEPTHS
-    else:
-        m["knot_pressures_bar" if profile == "knots" else "gradient_pressures_bar"] = KNOTS_BAR
+    key, values = KNOT_OPTIONS[profile]
+    m[key] = values
     if opacity_dir:
         m["opacity_dir"] = opacity_dir
     return m
