@@ -170,7 +170,8 @@ def test_chain_pilot_mixture_recovers_the_analytic_posterior(linear_data, tmp_pa
     run = load_run(tmp_path / "run", model_factory=factory)
     pilot = run.manifest["pilot"]
     assert pilot["steps"] == 300 and pilot["mixture_components"] >= 1 and "ln_z" not in pilot
-    # every pilot step costs one call per walker; the optimiser's calls are not counted in it
+    # one call per walker and pilot step (no proposal leaves these wide priors; outside them a
+    # proposal costs no call); the optimiser's calls are not counted in it
     assert pilot["likelihood_calls"] == 300 * res.n_walkers
     notes = report_content(run, figures=()).notes
     assert any("preliminary 300-step chain" in n and "not part of the posterior sample" in n for n in notes)
