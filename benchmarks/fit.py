@@ -135,7 +135,7 @@ def simulate(folder: Path, opacity_dir: str, layers: int, seed: int = 1,
 
 def config_text(opacity_dir: str, layers: int, ifs_sigma: float, max_steps: int, seed: int,
                 moves: str = "stretch", check_every: int = 50, profile: str = "knots",
-                pilot: str = "chain", pilot_steps: int = 1500) -> str:
+                pilot: str = "chain", pilot_steps: int = 1500, coordinates: str = "physical") -> str:
     def val(v):
         return json.dumps(v)
     lines = ["[object]", 'name = "benchmark"', "", "[model]"]
@@ -148,7 +148,7 @@ def config_text(opacity_dir: str, layers: int, ifs_sigma: float, max_steps: int,
     lines += ["", "[[datasets]]", 'name = "ifs"', 'file = "ifs.ecsv"', "inflate_errors = true",
               "", "[[datasets]]", 'name = "phot"', 'file = "phot.ecsv"',
               "", "[sampler]", f"max_steps = {max_steps}", f"check_every = {check_every}", f"seed = {seed}",
-              f'moves = "{moves}"']
+              f'moves = "{moves}"', f'coordinates = "{coordinates}"']
     if moves == "pilot-mixture":
         lines.append(f'pilot = "{pilot}"')
         if pilot == "chain":
@@ -176,6 +176,9 @@ def main(argv=None) -> int:
                     help="T–P parametrisation of the 5 T–P parameters: knot temperatures at fixed grey "
                          "optical depths (tau-knots), column masses (column-knots) or pressures (knots), "
                          "or T(100 bar) + 4 gradients d ln T / d ln P (gradient)")
+    ap.add_argument("--coordinates", default="physical", choices=("physical", "unbounded"),
+                    help="[sampler] coordinates: walkers move in the parameters or in logit-mapped ones "
+                         "with no prior bounds")
     ap.add_argument("--keep", metavar="RUN_DIR", help="write the run folder here (default: a temporary folder)")
     args = ap.parse_args(argv)
     from retrieve.inference import fit
@@ -190,14 +193,16 @@ def main(argv=None) -> int:
         sigma = float(np.median(read_dataset(ifs).uncertainty))
         cfg = tmp / "fit.toml"
         cfg.write_text(config_text(opacity_dir, args.layers, sigma, args.max_steps, args.seed, args.moves,
-                                  args.check_every, args.profile, args.pilot, args.pilot_steps))
+                                  args.check_every, args.profile, args.pilot, args.pilot_steps,
+                                  args.coordinates))
         out = Path(args.keep) if args.keep else tmp / "run"
         t0 = time.perf_counter()
         res = fit(cfg, out_dir=out, workers=args.workers, overwrite=bool(args.keep))
         wall = time.perf_counter() - t0
         manifest = json.loads((out / "manifest.json").read_text())
         print(f"opacity: {source}")
-        print(f"moves: {args.moves}; profile: {args.profile}; layers: {args.layers}"
+        print(f"moves: {args.moves}; coordinates: {args.coordinates}; profile: {args.profile}; "
+              f"layers: {args.layers}"
               + (f"; pilot: {args.pilot}" if args.moves == "pilot-mixture" else ""))
         print(f"free parameters: {len(manifest['param_names'])} ({', '.join(manifest['param_names'])})")
         print(f"{'converged' if res.converged else 'NOT converged'} after {res.n_steps} steps x {res.n_walkers} "

@@ -24,6 +24,10 @@ Layout (format ``retrieve-chain``, version 1)::
     attrs: format, format_version, param_names (JSON), rng_pos, rng_has_gauss,
            rng_cached_gaussian, config_digest, seed, converged, failures (JSON),
            n_evaluations, elapsed_s, pilot (JSON: the pilot run's summary, or {})
+    /walkers/positions, /walkers/log_prob
+                     the last walker positions and emcee's ln p in sampler
+                     coordinates (only with coordinates = "unbounded"; the
+                     chain itself is always in physical coordinates)
 """
 from __future__ import annotations
 
@@ -60,6 +64,14 @@ class Checkpoint:
     elapsed_s: float = 0.0
     proposal: GaussianMixture | None = None
     pilot: dict = dataclasses.field(default_factory=dict)
+    walker_positions: np.ndarray | None = None     # sampler coordinates, when they are not physical
+    walker_log_prob: np.ndarray | None = None
+
+    def walker_state(self) -> tuple[np.ndarray, np.ndarray]:
+        """Last walker positions and ln p in sampler coordinates (where a resumed run continues)."""
+        if self.walker_positions is not None:
+            return self.walker_positions, self.walker_log_prob
+        return self.chain[-1], self.log_prob[-1]
 
     @property
     def n_steps(self) -> int:
@@ -110,6 +122,9 @@ def write_checkpoint(path: str | os.PathLike, ckpt: Checkpoint) -> Path:
         if ckpt.proposal is not None:
             for key in ("weights", "means", "covariances"):
                 f.create_dataset(f"proposal/{key}", data=getattr(ckpt.proposal, key))
+        if ckpt.walker_positions is not None:
+            f.create_dataset("walkers/positions", data=np.asarray(ckpt.walker_positions, dtype=float))
+            f.create_dataset("walkers/log_prob", data=np.asarray(ckpt.walker_log_prob, dtype=float))
         f.flush()
     fd = os.open(tmp, os.O_RDONLY)
     try:
@@ -134,6 +149,7 @@ def read_checkpoint(path: str | os.PathLike) -> Checkpoint:
             proposal = None
             if "proposal" in f:
                 proposal = GaussianMixture(*(f[f"proposal/{k}"][()] for k in ("weights", "means", "covariances")))
+            walkers = (f["walkers/positions"][()], f["walkers/log_prob"][()]) if "walkers" in f else (None, None)
             rs = (str(f.attrs["rng_name"]), keys, int(f.attrs["rng_pos"]),
                   int(f.attrs["rng_has_gauss"]), float(f.attrs["rng_cached_gaussian"]))
             return Checkpoint(
@@ -143,7 +159,8 @@ def read_checkpoint(path: str | os.PathLike) -> Checkpoint:
                 config_digest=str(f.attrs["config_digest"]), seed=int(f.attrs["seed"]),
                 converged=bool(f.attrs["converged"]), failures=json.loads(f.attrs["failures"]),
                 n_evaluations=int(f.attrs["n_evaluations"]), elapsed_s=float(f.attrs["elapsed_s"]),
-                proposal=proposal, pilot=json.loads(f.attrs.get("pilot", "{}")))
+                proposal=proposal, pilot=json.loads(f.attrs.get("pilot", "{}")),
+                walker_positions=walkers[0], walker_log_prob=walkers[1])
     except (OSError, KeyError) as exc:
         raise InputFileError(f"{path}: unreadable chain file ({exc}); start again with --overwrite") from None
 

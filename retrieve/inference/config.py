@@ -35,6 +35,7 @@ from ..config_keys import check_keys, expect_type, suggest
 from ..errors import ConfigError
 from .likelihood import NUISANCE_PREFIXES, nuisance_names
 from .priors import Gaussian, Prior, prior_from_mapping
+from .coordinates import COORDINATES
 from .moves import MOVES
 from .sampler import SamplerSettings
 
@@ -49,7 +50,7 @@ SAMPLER_TYPES = {
     "predictive_draws": int, "progress": bool, "moves": str, "ball": str,
     "polish_max_evaluations": int, "polish_candidates": int,
     "pilot": str, "pilot_live_points": int, "pilot_dlogz": (int, float), "pilot_steps": int,
-    "mixture_components": int,
+    "mixture_components": int, "coordinates": str,
 }
 BALLS = ("hessian", "fixed")
 OPTIMISERS = ("differential-evolution", "none")
@@ -273,6 +274,9 @@ def _sampler(table: Mapping, where: str) -> SamplerSettings:
     if "moves" in values and values["moves"] not in MOVES:
         raise ConfigError(f"{where}: moves {values['moves']!r} unknown{suggest(values['moves'], MOVES)}; "
                           f"choose one of {', '.join(MOVES)}")
+    if "coordinates" in values and values["coordinates"] not in COORDINATES:
+        raise ConfigError(f"{where}: coordinates {values['coordinates']!r} unknown"
+                          f"{suggest(values['coordinates'], COORDINATES)}; choose one of {', '.join(COORDINATES)}")
     if "pilot" in values and values["pilot"] not in PILOTS:
         raise ConfigError(f"{where}: pilot {values['pilot']!r} unknown{suggest(values['pilot'], PILOTS)}; "
                           f"choose one of {', '.join(PILOTS)}")

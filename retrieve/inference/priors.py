@@ -7,7 +7,10 @@ Every prior offers
   (for nested samplers, which draw from the unit hypercube);
 * ``sample(rng, size)`` – draws from a :class:`numpy.random.Generator`;
 * ``bounds``       – a finite interval holding (almost) all prior mass, used to
-  bound the global optimiser and to clip the initial walker ball.
+  bound the global optimiser and to clip the initial walker ball;
+* ``support``      – the interval where the density is non-zero (infinite ends
+  for unbounded priors), which ``[sampler] coordinates = "unbounded"`` maps
+  onto the real line (:mod:`retrieve.inference.coordinates`).
 
 A new prior is a subclass of :class:`Prior` decorated with
 :func:`register_prior`; the TOML table ``{ prior = "<name>", ... }`` then
@@ -62,6 +65,11 @@ class Prior:
     @property
     def bounds(self) -> tuple[float, float]:
         raise NotImplementedError
+
+    @property
+    def support(self) -> tuple[float, float]:
+        """(low, high) outside which the density is zero; (−inf, inf) unless a subclass is bounded."""
+        return -math.inf, math.inf
 
     def sample(self, rng: np.random.Generator, size=None):
         """Draw from the prior with ``rng`` (inverse-CDF sampling)."""
@@ -128,6 +136,10 @@ class Uniform(Prior):
     def bounds(self):
         return self.low, self.high
 
+    @property
+    def support(self):
+        return self.low, self.high
+
 
 @register_prior
 class LogUniform(Prior):
@@ -155,6 +167,10 @@ class LogUniform(Prior):
 
     @property
     def bounds(self):
+        return self.low, self.high
+
+    @property
+    def support(self):
         return self.low, self.high
 
 
@@ -213,6 +229,10 @@ class TruncatedGaussian(Prior):
 
     @property
     def bounds(self):
+        return self.low, self.high
+
+    @property
+    def support(self):
         return self.low, self.high
 
     def __getstate__(self):

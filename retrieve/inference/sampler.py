@@ -62,6 +62,7 @@ from scipy import optimize
 from ..errors import UserError
 from .checkpoint import Checkpoint, read_checkpoint, remove_stale_temporaries, write_checkpoint
 from .convergence import ConvergenceRule, autocorr_time, tau_discard
+from .coordinates import Coordinates, SamplerSpace
 from .mixture import defensive, fit_mixture
 from .moves import NEEDS_MIXTURE, make_moves
 from .pilot import distinct_start, run_pilot
@@ -102,6 +103,7 @@ class SamplerSettings:
     pilot_dlogz: float = 1.0
     pilot_steps: int = 1500
     mixture_components: int = 16
+    coordinates: str = "physical"
 
     def n_walkers(self, ndim: int) -> int:
         """Walker count: ``walkers`` or, when 0, the smallest even number ≥ 2·ndim + 2."""
@@ -409,8 +411,11 @@ class StartState:
 
 def _pilot_start(posterior, settings: SamplerSettings, evaluator: EvaluationMap, seed: int,
                  rng: np.random.Generator, n_walkers: int, progress: bool = False,
-                 state_file=None, resume: bool = False):
-    """Walkers on distinct pilot samples, and the proposal mixture fitted to the pilot sample."""
+                 state_file=None, resume: bool = False, coordinates: Coordinates | None = None):
+    """Walkers on distinct pilot samples, and the proposal mixture fitted to the pilot sample.
+
+    The mixture is fitted in sampler coordinates (``coordinates``), where the moves use it.
+    """
     pool = evaluator._pool
     pilot = run_pilot(posterior, settings.pilot_live_points, settings.pilot_dlogz, seed, pool=pool,
                       progress=progress, state_file=state_file, resume=resume)
@@ -424,7 +429,10 @@ def _pilot_start(posterior, settings: SamplerSettings, evaluator: EvaluationMap,
         if not np.all(np.isfinite(lp)):
             raise UserError("the nested-sampling pilot found too few points with a finite posterior; "
                             "check the model or raise pilot_live_points")
-    proposal = _proposal_mixture(pilot.samples, settings, rng) if settings.moves in NEEDS_MIXTURE else None
+    proposal = None
+    if settings.moves in NEEDS_MIXTURE:
+        samples = pilot.samples if coordinates is None else coordinates.to_sampler(pilot.samples)
+        proposal = _proposal_mixture(samples, settings, rng)
     summary = pilot.summary()
     if proposal is not None:
         summary["mixture_components"] = proposal.n_components - 1
@@ -437,12 +445,16 @@ def _proposal_mixture(samples: np.ndarray, settings: SamplerSettings, rng: np.ra
     return defensive(fit_mixture(samples, rng, components=counts), samples)
 
 
-def _pilot_chain(posterior, settings: SamplerSettings, evaluator: EvaluationMap, pos, lp, seed: int,
+def _pilot_chain(posterior, settings: SamplerSettings, space: SamplerSpace, pos, lp, seed: int,
                  rng: np.random.Generator, progress: bool = False):
-    """Preliminary DE-moves chain from ``pos``: its final walkers, their ln p, the mixture and a summary."""
+    """Preliminary DE-moves chain from ``pos`` (sampler coordinates, as everything here).
+
+    Returns its final walkers, their ln p, the mixture and a summary.
+    """
     n_walkers, ndim = pos.shape
+    evaluator = space.evaluator
     calls_before = evaluator.n_evaluations
-    sampler = emcee.EnsembleSampler(n_walkers, ndim, posterior, pool=evaluator,
+    sampler = emcee.EnsembleSampler(n_walkers, ndim, posterior, pool=space,
                                     moves=make_moves("differential-evolution"))
     state = emcee.State(pos, log_prob=lp, random_state=np.random.RandomState(seed).get_state())
     bar = _progress_bar(progress, settings.pilot_steps, 0, "pilot chain")
@@ -465,19 +477,40 @@ def _pilot_chain(posterior, settings: SamplerSettings, evaluator: EvaluationMap,
     return state.coords.copy(), state.log_prob.copy(), proposal, summary
 
 
+def _enter_sampler_space(space: SamplerSpace, pos, lp):
+    """Walker positions and ln p in sampler coordinates from physical ones.
+
+    With a non-trivial map the posterior is evaluated again at x(y(x)), so
+    that ln p belongs exactly to the walker's position (the round trip moves
+    x by a few ulp).
+    """
+    if space.coordinates.identity:
+        return pos, lp
+    y = space.coordinates.to_sampler(pos)
+    lp_y = np.array(space.map(None, y))
+    if not np.all(np.isfinite(lp_y)):
+        raise UserError("a start position has zero posterior density after the change to unbounded "
+                        "coordinates; use coordinates = \"physical\" in [sampler]")
+    return y, lp_y
+
+
 def start_state(posterior, settings: SamplerSettings, evaluator: EvaluationMap,
-                progress: bool = False, pilot_state=None, resume_pilot: bool = False) -> StartState:
-    """Initial positions, their ln p and emcee's initial generator state.
+                progress: bool = False, pilot_state=None, resume_pilot: bool = False,
+                space: SamplerSpace | None = None) -> StartState:
+    """Initial positions (sampler coordinates of ``space``), their ln p and emcee's generator state.
 
     ``pilot_state``: file where a nested-sampling pilot saves its state;
     ``resume_pilot`` continues a saved pilot there.
     """
+    if space is None:
+        space = SamplerSpace(evaluator, Coordinates(posterior.priors, settings.coordinates))
     de_seed, rng, emcee_seed = _seeds(settings.seed)
     n_walkers = settings.n_walkers(posterior.ndim)
     random_state = np.random.RandomState(emcee_seed).get_state()
     if settings.pilot == "nested":
         pos, lp, proposal, pilot = _pilot_start(posterior, settings, evaluator, de_seed, rng, n_walkers,
-                                                progress, pilot_state, resume_pilot)
+                                                progress, pilot_state, resume_pilot, space.coordinates)
+        pos, lp = _enter_sampler_space(space, pos, lp)
         return StartState(pos, lp, random_state, proposal, pilot)
     if settings.optimiser == "none":
         pos, lp = prior_draws(posterior.priors, n_walkers, rng, evaluator)
@@ -488,9 +521,10 @@ def start_state(posterior, settings: SamplerSettings, evaluator: EvaluationMap,
             cov = laplace_covariance(evaluator, best, prior_bounds(posterior.priors))
         pos, lp = initial_ball(best, posterior.priors, n_walkers, settings.ball_scale, rng, evaluator,
                                covariance=cov)
+    pos, lp = _enter_sampler_space(space, pos, lp)
     if settings.pilot == "chain":
         pilot_seed = int(np.random.SeedSequence([int(settings.seed), 1]).generate_state(1)[0])
-        pos, lp, proposal, pilot = _pilot_chain(posterior, settings, evaluator, pos, lp, pilot_seed, rng, progress)
+        pos, lp, proposal, pilot = _pilot_chain(posterior, settings, space, pos, lp, pilot_seed, rng, progress)
         return StartState(pos, lp, random_state, proposal, pilot)
     return StartState(pos, lp, random_state)
 
@@ -529,6 +563,7 @@ def run_sampler(posterior, settings: SamplerSettings, checkpoint_path, workers: 
                       RuntimeWarning, stacklevel=2)
         resume = False
     with EvaluationMap(posterior, workers, pool=pool) as evaluator:
+        space = SamplerSpace(evaluator, Coordinates(posterior.priors, settings.coordinates))
         if resume:
             remove_stale_temporaries(checkpoint_path)
             ck = read_checkpoint(checkpoint_path)
@@ -537,7 +572,8 @@ def run_sampler(posterior, settings: SamplerSettings, checkpoint_path, workers: 
                                          f"configuration; use --overwrite to start afresh")
             evaluator.failures.update(ck.failures)
             evaluator.n_evaluations = ck.n_evaluations
-            pos, lp, rstate = ck.chain[-1], ck.log_prob[-1], ck.random_state
+            pos, lp = ck.walker_state()
+            rstate = ck.random_state
             proposal, pilot = ck.proposal, ck.pilot
             chains, lps = [ck.chain], [ck.log_prob]
             accepted = ck.accepted.astype(np.int64)
@@ -547,7 +583,7 @@ def run_sampler(posterior, settings: SamplerSettings, checkpoint_path, workers: 
             converged = ck.converged
         else:
             start = start_state(posterior, settings, evaluator, progress=show, pilot_state=pilot_state,
-                                resume_pilot=restart)
+                                resume_pilot=restart, space=space)
             pos, lp, rstate = start.positions, start.log_prob, start.random_state
             proposal, pilot = start.proposal, start.pilot
             chains, lps, history = [], [], []
@@ -555,7 +591,7 @@ def run_sampler(posterior, settings: SamplerSettings, checkpoint_path, workers: 
             elapsed_before, n_done, converged = 0.0, 0, False
         resumed_from = n_done
         n_walkers, ndim = pos.shape
-        sampler = emcee.EnsembleSampler(n_walkers, ndim, posterior, pool=evaluator,
+        sampler = emcee.EnsembleSampler(n_walkers, ndim, posterior, pool=space,
                                         moves=make_moves(settings.moves, proposal))
         t_sampling = time.perf_counter()
         bar = _progress_bar(show, settings.max_steps, n_done)
@@ -568,8 +604,9 @@ def run_sampler(posterior, settings: SamplerSettings, checkpoint_path, workers: 
                 for state in sampler.sample(state, iterations=k, store=True):
                     if bar is not None:
                         bar.update(1)
-                chains.append(sampler.get_chain())
-                lps.append(sampler.get_log_prob())
+                chunk = sampler.get_chain()                    # sampler coordinates
+                chains.append(space.coordinates.to_physical(chunk))
+                lps.append(space.physical_log_prob(chunk, sampler.get_log_prob()))
                 accepted += sampler.backend.accepted.astype(np.int64)
                 pos, lp, rstate = state.coords.copy(), state.log_prob.copy(), sampler.random_state
                 n_done += k
@@ -583,7 +620,8 @@ def run_sampler(posterior, settings: SamplerSettings, checkpoint_path, workers: 
                 ck = Checkpoint(posterior.param_names, chain, lps[0], accepted, rstate, np.array(history),
                                 config_digest, settings.seed, converged, dict(evaluator.failures),
                                 evaluator.n_evaluations,
-                                elapsed_before + time.perf_counter() - t0, proposal, pilot)
+                                elapsed_before + time.perf_counter() - t0, proposal, pilot,
+                                *((None, None) if space.coordinates.identity else (pos, lp)))
                 write_checkpoint(checkpoint_path, ck)
                 pilot_state.unlink(missing_ok=True)     # the chain checkpoint now holds what the pilot gave
                 if bar is not None:
