@@ -135,7 +135,8 @@ def simulate(folder: Path, opacity_dir: str, layers: int, seed: int = 1,
 
 def config_text(opacity_dir: str, layers: int, ifs_sigma: float, max_steps: int, seed: int,
                 moves: str = "stretch", check_every: int = 50, profile: str = "knots",
-                pilot: str = "chain", pilot_steps: int = 1500, coordinates: str = "physical") -> str:
+                pilot: str = "chain", pilot_steps: int = 1500, coordinates: str = "physical",
+                pilot_rounds: int = 1) -> str:
     def val(v):
         return json.dumps(v)
     lines = ["[object]", 'name = "benchmark"', "", "[model]"]
@@ -153,6 +154,7 @@ def config_text(opacity_dir: str, layers: int, ifs_sigma: float, max_steps: int,
         lines.append(f'pilot = "{pilot}"')
         if pilot == "chain":
             lines.append(f"pilot_steps = {pilot_steps}")
+            lines.append(f"pilot_rounds = {pilot_rounds}")
     return "\n".join(lines) + "\n"
 
 
@@ -169,6 +171,8 @@ def main(argv=None) -> int:
     ap.add_argument("--pilot", default="chain", choices=("chain", "nested"),
                     help="with --moves pilot-mixture: the run the proposal mixture is fitted to")
     ap.add_argument("--pilot-steps", type=int, default=1500, help="[sampler] pilot_steps for --pilot chain")
+    ap.add_argument("--pilot-rounds", type=int, default=1,
+                    help="[sampler] pilot_rounds for --pilot chain: mixture refitted after each round")
     ap.add_argument("--check-every", type=int, default=50,
                     help="[sampler] check_every: steps between τ checks (the 1 %% stability test "
                          "compares consecutive checks)")
@@ -194,7 +198,7 @@ def main(argv=None) -> int:
         cfg = tmp / "fit.toml"
         cfg.write_text(config_text(opacity_dir, args.layers, sigma, args.max_steps, args.seed, args.moves,
                                   args.check_every, args.profile, args.pilot, args.pilot_steps,
-                                  args.coordinates))
+                                  args.coordinates, args.pilot_rounds))
         out = Path(args.keep) if args.keep else tmp / "run"
         t0 = time.perf_counter()
         res = fit(cfg, out_dir=out, workers=args.workers, overwrite=bool(args.keep))

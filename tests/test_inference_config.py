@@ -72,6 +72,10 @@ BAD = {
                          "'pilot_live_points' must be >= 10, got 5"),
     "short-pilot-chain": (_edit("max_steps = 200", 'max_steps = 200\npilot = "chain"\npilot_steps = 1'),
                           "'pilot_steps' must be >= 2, got 1"),
+    "no-pilot-rounds": (_edit("max_steps = 200", 'max_steps = 200\npilot = "chain"\npilot_rounds = 0'),
+                        "'pilot_rounds' must be >= 1, got 0"),
+    "bad-coordinates": (_edit("max_steps = 200", 'max_steps = 200\ncoordinates = "unbound"'),
+                        "did you mean 'unbounded'?"),
     "no-free-parameter": ("[parameters]\nlog_g = 4.0\n", "no free parameter"),
     "not-toml": ("[parameters\nlog_g = 4.0\n", "not valid TOML"),
 }

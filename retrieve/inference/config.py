@@ -49,7 +49,7 @@ SAMPLER_TYPES = {
     "optimiser_max_evaluations": int, "optimiser_popsize": int, "ball_scale": (int, float),
     "predictive_draws": int, "progress": bool, "moves": str, "ball": str,
     "polish_max_evaluations": int, "polish_candidates": int,
-    "pilot": str, "pilot_live_points": int, "pilot_dlogz": (int, float), "pilot_steps": int,
+    "pilot": str, "pilot_live_points": int, "pilot_dlogz": (int, float), "pilot_steps": int, "pilot_rounds": int,
     "mixture_components": int, "coordinates": str,
 }
 BALLS = ("hessian", "fixed")
@@ -286,6 +286,8 @@ def _sampler(table: Mapping, where: str) -> SamplerSettings:
         raise ConfigError(f"{where}: 'pilot_dlogz' must be > 0, got {values['pilot_dlogz']}")
     if values.get("pilot_steps", 2) < 2:
         raise ConfigError(f"{where}: 'pilot_steps' must be >= 2, got {values['pilot_steps']}")
+    if values.get("pilot_rounds", 1) < 1:
+        raise ConfigError(f"{where}: 'pilot_rounds' must be >= 1, got {values['pilot_rounds']}")
     if values.get("mixture_components", 1) < 1:
         raise ConfigError(f"{where}: 'mixture_components' must be >= 1, got {values['mixture_components']}")
     if values.get("moves") == "pilot-mixture" and values.get("pilot", "none") == "none":

@@ -102,6 +102,7 @@ class SamplerSettings:
     pilot_live_points: int = 200
     pilot_dlogz: float = 1.0
     pilot_steps: int = 1500
+    pilot_rounds: int = 1
     mixture_components: int = 16
     coordinates: str = "physical"
 
@@ -445,36 +446,66 @@ def _proposal_mixture(samples: np.ndarray, settings: SamplerSettings, rng: np.ra
     return defensive(fit_mixture(samples, rng, components=counts), samples)
 
 
+def _round_lengths(steps: int, rounds: int) -> list[int]:
+    """``steps`` split into ``rounds`` near-equal parts (the earlier rounds take the remainder)."""
+    rounds = max(1, min(int(rounds), int(steps) // 2))
+    base, extra = divmod(int(steps), rounds)
+    return [base + (i < extra) for i in range(rounds)]
+
+
 def _pilot_chain(posterior, settings: SamplerSettings, space: SamplerSpace, pos, lp, seed: int,
                  rng: np.random.Generator, progress: bool = False):
-    """Preliminary DE-moves chain from ``pos`` (sampler coordinates, as everything here).
+    """Preliminary chain from ``pos`` (sampler coordinates, as everything here), in rounds.
 
-    Returns its final walkers, their ln p, the mixture and a summary.
+    The first round uses the differential-evolution moves.  With the
+    ``pilot-mixture`` moves, a mixture is fitted after every round to the
+    second half of the pilot chain so far, and the next round (of
+    ``pilot_rounds``) already uses the pilot-mixture moves with it: each
+    round's independence draws reach further along the posterior than the
+    last round's local moves did, and the next mixture covers more of it.
+    The last fit is the frozen proposal of the recorded chain; nothing of the
+    pilot chain itself is kept.
+
+    Returns the final walkers, their ln p, the mixture and a summary.
     """
     n_walkers, ndim = pos.shape
     evaluator = space.evaluator
     calls_before = evaluator.n_evaluations
-    sampler = emcee.EnsembleSampler(n_walkers, ndim, posterior, pool=space,
-                                    moves=make_moves("differential-evolution"))
-    state = emcee.State(pos, log_prob=lp, random_state=np.random.RandomState(seed).get_state())
+    wants_mixture = settings.moves in NEEDS_MIXTURE
+    lengths = _round_lengths(settings.pilot_steps, settings.pilot_rounds if wants_mixture else 1)
+    generator = np.random.RandomState(seed)
     bar = _progress_bar(progress, settings.pilot_steps, 0, "pilot chain")
+    proposal, chains, acceptance = None, [], []
     try:
-        for state in sampler.sample(state, iterations=settings.pilot_steps, store=True):
-            if bar is not None:
-                bar.update(1)
+        for steps in lengths:
+            moves = make_moves("differential-evolution") if proposal is None else \
+                make_moves(settings.moves, proposal)
+            sampler = emcee.EnsembleSampler(n_walkers, ndim, posterior, pool=space, moves=moves)
+            state = emcee.State(pos, log_prob=lp, random_state=generator.get_state())
+            for state in sampler.sample(state, iterations=steps, store=True):
+                if bar is not None:
+                    bar.update(1)
+            generator.set_state(sampler.random_state)
+            pos, lp = state.coords.copy(), state.log_prob.copy()
+            chains.append(sampler.get_chain())
+            acceptance.append(float(np.mean(sampler.acceptance_fraction)))
+            chain = np.concatenate(chains)
+            samples = chain[chain.shape[0] // 2:].reshape(-1, ndim)
+            if wants_mixture:
+                proposal = _proposal_mixture(samples, settings, rng)
     finally:
         if bar is not None:
             bar.close()
-    chain = sampler.get_chain()
-    samples = chain[chain.shape[0] // 2:].reshape(-1, ndim)
-    proposal = _proposal_mixture(samples, settings, rng) if settings.moves in NEEDS_MIXTURE else None
     summary = {"method": "preliminary differential-evolution chain", "steps": int(settings.pilot_steps),
                "likelihood_calls": int(evaluator.n_evaluations - calls_before),
                "distinct_samples": int(np.unique(samples, axis=0).shape[0]),
-               "acceptance": float(np.mean(sampler.acceptance_fraction))}
+               "acceptance": float(np.average(acceptance, weights=lengths))}
+    if len(lengths) > 1:
+        summary["method"] = f"preliminary chain in {len(lengths)} rounds (differential-evolution, then pilot-mixture)"
+        summary["rounds"] = len(lengths)
     if proposal is not None:
         summary["mixture_components"] = proposal.n_components - 1
-    return state.coords.copy(), state.log_prob.copy(), proposal, summary
+    return pos, lp, proposal, summary
 
 
 def _enter_sampler_space(space: SamplerSpace, pos, lp):
