@@ -3,7 +3,6 @@ import numpy as np
 import pytest
 from scipy import stats
 
-from retrieve.errors import ConfigError
 from retrieve.inference import fit, parse_config
 from retrieve.inference.checkpoint import read_checkpoint
 from retrieve.inference.coordinates import Coordinates, SamplerSpace
@@ -51,12 +50,6 @@ def test_sampler_space_adds_the_jacobian_and_keeps_minus_infinity():
     assert lp[0] == pytest.approx(-0.5 * x[0] @ x[0] + space.coordinates.log_jacobian(y[0]))
     assert lp[1] == -np.inf
     assert space.physical_log_prob(y[:1], lp[:1])[0] == pytest.approx(-0.5 * x[0] @ x[0])
-
-
-def test_unknown_coordinates_is_a_config_error():
-    with pytest.raises(ConfigError, match=r"coordinates 'unbound' unknown.*did you mean 'unbounded'"):
-        parse_config({"parameters": {"a": {"prior": "uniform", "low": 0, "high": 1}},
-                      "datasets": [{"name": "ifs", "file": "x.ecsv"}], "sampler": {"coordinates": "unbound"}})
 
 
 # --------------------------------------------------------------------------- a posterior at a prior bound
