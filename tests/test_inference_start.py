@@ -110,3 +110,14 @@ def test_discard_removes_a_start_up_transient_from_tau():
     assert whole > 1.3 * after
     rule = ConvergenceRule()
     assert rule.converged(n - d, np.array([after]), np.array([after * 1.005]))
+
+
+def test_optimiser_stages_show_progress_and_give_the_same_start(capsys):
+    post = Gaussian3()
+    settings = SamplerSettings(optimiser_max_evaluations=90)       # 90 // (10 × 3) − 1 = 2 generations
+    quiet = find_maximum(EvaluationMap(post), PRIORS, settings, 5)
+    shown = find_maximum(EvaluationMap(post), PRIORS, settings, 5, progress=True)
+    err = capsys.readouterr().err
+    assert "optimiser" in err and "2/2" in err and "generation" in err
+    assert "polish" in err and "candidate" in err
+    assert np.array_equal(quiet, shown)                            # the bars change nothing

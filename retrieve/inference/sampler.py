@@ -218,15 +218,26 @@ def prior_bounds(priors) -> np.ndarray:
     return np.array([p.bounds for p in priors], dtype=float)
 
 
-def _de_population(evaluator: EvaluationMap, priors, settings: SamplerSettings, seed: int):
+def _de_population(evaluator: EvaluationMap, priors, settings: SamplerSettings, seed: int,
+                   progress: bool = False):
     """Final differential-evolution population sorted by ln p (best first): (points, -ln p)."""
     bounds = prior_bounds(priors)
     ndim = len(priors)
     popsize = max(int(settings.optimiser_popsize), 1)
     maxiter = max(1, settings.optimiser_max_evaluations // (popsize * ndim) - 1)
-    res = optimize.differential_evolution(
-        lambda x: 0.0, bounds, maxiter=maxiter, popsize=popsize, seed=seed, polish=False,
-        updating="deferred", workers=evaluator.negative_map, init="latinhypercube", tol=1e-8)
+    bar = _progress_bar(progress, maxiter, 0, "optimiser", unit="generation")
+
+    def generation_done(x, convergence=None):     # scipy's per-generation callback (legacy signature)
+        if bar is not None:
+            bar.update(1)
+    try:
+        res = optimize.differential_evolution(
+            lambda x: 0.0, bounds, maxiter=maxiter, popsize=popsize, seed=seed, polish=False,
+            updating="deferred", workers=evaluator.negative_map, init="latinhypercube", tol=1e-8,
+            callback=generation_done)
+    finally:
+        if bar is not None:
+            bar.close()
     pop = np.asarray(getattr(res, "population", [res.x]), dtype=float)
     energy = np.asarray(getattr(res, "population_energies", [res.fun]), dtype=float)
     order = np.argsort(energy, kind="stable")
@@ -256,18 +267,32 @@ def polish(posterior, x0, bounds, max_evaluations: int):
     return np.asarray(res.x, float), -float(res.fun), int(res.nfev)
 
 
-def find_maximum(evaluator: EvaluationMap, priors, settings: SamplerSettings, seed: int) -> np.ndarray:
-    """Approximate maximum of ln posterior: differential evolution, then Nelder–Mead polish of the best candidates."""
+def find_maximum(evaluator: EvaluationMap, priors, settings: SamplerSettings, seed: int,
+                 progress: bool = False) -> np.ndarray:
+    """Approximate maximum of ln posterior: differential evolution, then Nelder–Mead polish of the best candidates.
+
+    ``progress`` shows a bar per stage (generations, then polished candidates).
+    """
     bounds = prior_bounds(priors)
-    pop, energy = _de_population(evaluator, priors, settings, seed)
+    pop, energy = _de_population(evaluator, priors, settings, seed, progress)
     if settings.polish_max_evaluations <= 0 or settings.polish_candidates <= 0:
         return pop[0]
     starts = distinct_candidates(pop, bounds, settings.polish_candidates)
     tasks = [(x0, bounds, settings.polish_max_evaluations) for x0 in starts]
-    if evaluator._pool is not None:     # one polish per worker process
-        results = evaluator._pool.map(_worker_polish, tasks)
+    bar = _progress_bar(progress, len(tasks), 0, "polish", unit="candidate")
+    if evaluator._pool is not None:     # one polish per worker process, results in task order
+        jobs = evaluator._pool.imap(_worker_polish, tasks)
     else:
-        results = [polish(evaluator.posterior, *t) for t in tasks]
+        jobs = (polish(evaluator.posterior, *t) for t in tasks)
+    results = []
+    try:
+        for r in jobs:
+            results.append(r)
+            if bar is not None:
+                bar.update(1)
+    finally:
+        if bar is not None:
+            bar.close()
     evaluator.n_evaluations += sum(r[2] for r in results)
     best = max(results, key=lambda r: r[1])
     return best[0] if best[1] > -energy[0] else pop[0]
@@ -546,7 +571,7 @@ def start_state(posterior, settings: SamplerSettings, evaluator: EvaluationMap,
     if settings.optimiser == "none":
         pos, lp = prior_draws(posterior.priors, n_walkers, rng, evaluator)
     else:
-        best = find_maximum(evaluator, posterior.priors, settings, de_seed)
+        best = find_maximum(evaluator, posterior.priors, settings, de_seed, progress)
         cov = None
         if settings.ball == "hessian":
             cov = laplace_covariance(evaluator, best, prior_bounds(posterior.priors))
@@ -675,8 +700,8 @@ def run_sampler(posterior, settings: SamplerSettings, checkpoint_path, workers: 
             sampling_s=time.perf_counter() - t_sampling, resumed_from=resumed_from, pilot=dict(pilot))
 
 
-def _progress_bar(show: bool, total: int, initial: int, desc: str = "sampling"):
+def _progress_bar(show: bool, total: int, initial: int, desc: str = "sampling", unit: str = "step"):
     if not show:
         return None
     from tqdm.auto import tqdm
-    return tqdm(total=total, initial=initial, desc=desc, unit="step", dynamic_ncols=True)
+    return tqdm(total=total, initial=initial, desc=desc, unit=unit, dynamic_ncols=True)
