@@ -12,6 +12,13 @@ The five knots (``--profile``) sit at fixed grey optical depths 1e-3 … 1e3
 fixed pressures 1e-4 … 100 bar (``knots``), or are expressed as T(100 bar)
 plus four gradients d ln T / d ln P (``gradient``).
 
+Sampler (defaults): optimiser + Hessian ball, then a chain pilot of 2000
+steps in 4 rounds (differential-evolution moves, then pilot-mixture moves
+with the mixture refitted after every round), then the recorded chain with
+the pilot-mixture moves and the last mixture frozen.  ``--moves``,
+``--pilot``, ``--pilot-steps``, ``--pilot-rounds`` and ``--coordinates``
+select the alternatives compared in the README.
+
 Prints the wall time to convergence (the engine's rule: chain longer than
 50 τ and τ stable to 1 %, checked every ``--check-every`` steps), the number
 of steps, τ, posterior evaluations per second and, with ``--moves
@@ -21,8 +28,9 @@ Uses the bundled tables in ``opacity_tables/`` when all are present; until
 then it builds the synthetic random-but-smooth tables of
 ``benchmarks/forward_model.py`` in a temporary folder and says so.
 
-Run: ``python benchmarks/fit.py [--workers 2] [--max-steps 40000]
-[--moves differential-evolution|stretch|pilot-mixture] [--pilot chain|nested]
+Run: ``python benchmarks/fit.py [--workers 2] [--max-steps 40000] [--seed 0]
+[--moves pilot-mixture|differential-evolution|stretch] [--pilot chain|nested]
+[--pilot-steps 2000] [--pilot-rounds 4] [--coordinates physical|unbounded]
 [--check-every 50] [--profile tau-knots|column-knots|knots|gradient] [--keep RUN_DIR]``.
 """
 from __future__ import annotations
@@ -135,8 +143,8 @@ def simulate(folder: Path, opacity_dir: str, layers: int, seed: int = 1,
 
 def config_text(opacity_dir: str, layers: int, ifs_sigma: float, max_steps: int, seed: int,
                 moves: str = "stretch", check_every: int = 50, profile: str = "knots",
-                pilot: str = "chain", pilot_steps: int = 1500, coordinates: str = "physical",
-                pilot_rounds: int = 1) -> str:
+                pilot: str = "chain", pilot_steps: int = 2000, coordinates: str = "physical",
+                pilot_rounds: int = 4) -> str:
     def val(v):
         return json.dumps(v)
     lines = ["[object]", 'name = "benchmark"', "", "[model]"]
@@ -164,14 +172,14 @@ def main(argv=None) -> int:
     ap.add_argument("--max-steps", type=int, default=40000)
     ap.add_argument("--layers", type=int, default=80)
     ap.add_argument("--seed", type=int, default=0)
-    ap.add_argument("--moves", default="differential-evolution",
+    ap.add_argument("--moves", default="pilot-mixture",
                     choices=("stretch", "differential-evolution", "pilot-mixture"),
                     help="emcee proposal ([sampler] moves); pilot-mixture adds a pilot (--pilot); "
                          "the local moves alone mix slowly along this posterior's gravity–abundance ridge")
     ap.add_argument("--pilot", default="chain", choices=("chain", "nested"),
                     help="with --moves pilot-mixture: the run the proposal mixture is fitted to")
-    ap.add_argument("--pilot-steps", type=int, default=1500, help="[sampler] pilot_steps for --pilot chain")
-    ap.add_argument("--pilot-rounds", type=int, default=1,
+    ap.add_argument("--pilot-steps", type=int, default=2000, help="[sampler] pilot_steps for --pilot chain")
+    ap.add_argument("--pilot-rounds", type=int, default=4,
                     help="[sampler] pilot_rounds for --pilot chain: mixture refitted after each round")
     ap.add_argument("--check-every", type=int, default=50,
                     help="[sampler] check_every: steps between τ checks (the 1 %% stability test "

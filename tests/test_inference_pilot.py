@@ -157,7 +157,7 @@ def _chain_config(path, **sampler):
 def test_chain_pilot_mixture_recovers_the_analytic_posterior(linear_data, tmp_path):
     path, y = linear_data
     factory = LinearModelFactory(N_COEF)
-    res = fit(_chain_config(path), out_dir=tmp_path / "run", model_factory=factory)
+    res = fit(_chain_config(path, pilot_rounds=1), out_dir=tmp_path / "run", model_factory=factory)
     m_n, s_n, _ = analytic_posterior(y)          # Bishop (2006) eqs. 3.53–3.54
     assert res.converged
     samples = np.column_stack([res.samples[f"coef_{k}"] for k in range(N_COEF)])
@@ -170,8 +170,8 @@ def test_chain_pilot_mixture_recovers_the_analytic_posterior(linear_data, tmp_pa
     run = load_run(tmp_path / "run", model_factory=factory)
     pilot = run.manifest["pilot"]
     assert pilot["steps"] == 300 and pilot["mixture_components"] >= 1 and "ln_z" not in pilot
-    # one call per walker and pilot step (no proposal leaves these wide priors; outside them a
-    # proposal costs no call); the optimiser's calls are not counted in it
+    # one round of DE moves: one call per walker and pilot step (no proposal leaves these wide
+    # priors; outside them a proposal costs no call); the optimiser's calls are not counted in it
     assert pilot["likelihood_calls"] == 300 * res.n_walkers
     notes = report_content(run, figures=()).notes
     assert any("preliminary 300-step chain" in n and "not part of the posterior sample" in n for n in notes)

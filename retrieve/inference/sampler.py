@@ -101,8 +101,8 @@ class SamplerSettings:
     pilot: str = "none"
     pilot_live_points: int = 200
     pilot_dlogz: float = 1.0
-    pilot_steps: int = 1500
-    pilot_rounds: int = 1
+    pilot_steps: int = 2000
+    pilot_rounds: int = 4
     mixture_components: int = 16
     coordinates: str = "physical"
 
