@@ -49,7 +49,8 @@ SAMPLER_TYPES = {
     "optimiser_max_evaluations": int, "optimiser_popsize": int, "ball_scale": (int, float),
     "predictive_draws": int, "progress": bool, "moves": str, "ball": str,
     "polish_max_evaluations": int, "polish_candidates": int,
-    "pilot": str, "pilot_live_points": int, "pilot_dlogz": (int, float), "pilot_steps": int, "pilot_rounds": int,
+    "pilot": str, "pilot_live_points": int, "pilot_dlogz": (int, float), "pilot_steps": int,
+    "pilot_rounds": int,
     "mixture_components": int, "coordinates": str,
 }
 BALLS = ("hessian", "fixed")

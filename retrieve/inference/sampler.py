@@ -23,14 +23,18 @@ Steps
    mixture fitted to that sample (:mod:`retrieve.inference.mixture`) is
    frozen as the independence proposal of ``moves = "pilot-mixture"``.
    With ``pilot = "chain"`` steps 1–2 run as usual and are followed by a
-   preliminary chain of ``pilot_steps`` steps with the
-   ``"differential-evolution"`` moves (its own generator stream, never part
-   of the result); the walkers continue from where it ends and the mixture
-   is fitted to its second half.  Much cheaper than a nested pilot when the
+   preliminary chain of ``pilot_steps`` steps (its own generator stream,
+   never part of the result) in ``pilot_rounds`` rounds: the first with the
+   ``"differential-evolution"`` moves, the later ones with the
+   pilot-mixture moves and the mixture refitted after each round to the
+   second half of the pilot so far (see :func:`_pilot_chain`); the walkers
+   continue from where it ends.  Much cheaper than a nested pilot when the
    optimiser already finds the posterior's bulk, but it cannot discover a
    mode the preliminary chain never reaches.
 3. :class:`emcee.EnsembleSampler` (moves of :mod:`retrieve.inference.moves`) run in
-   chunks of ``check_every`` steps.  After each chunk: τ estimate (after the
+   chunks of ``check_every`` steps, in the sampler coordinates of
+   :mod:`retrieve.inference.coordinates` (the parameters themselves unless
+   ``coordinates = "unbounded"``; the stored chain is always physical).  After each chunk: τ estimate (after the
    start-up discard of :func:`~retrieve.inference.convergence.tau_discard`),
    convergence test (:mod:`retrieve.inference.convergence`) and an atomic
    checkpoint (:mod:`retrieve.inference.checkpoint`).
