@@ -33,9 +33,9 @@ import numpy as np
 
 from ..config_keys import check_keys, expect_type, suggest
 from ..errors import ConfigError
+from .coordinates import COORDINATES
 from .likelihood import NUISANCE_PREFIXES, nuisance_names
 from .priors import Gaussian, Prior, prior_from_mapping
-from .coordinates import COORDINATES
 from .moves import MOVES
 from .sampler import SamplerSettings
 

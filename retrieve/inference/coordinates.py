@@ -57,7 +57,6 @@ class Coordinates:
     def __init__(self, priors, kind: str = "physical"):
         if kind not in COORDINATES:
             raise ValueError(f"unknown coordinates {kind!r}")
-        self.kind = kind
         support = np.array([p.support for p in priors], dtype=float).reshape(-1, 2)
         bounded = np.all(np.isfinite(support), axis=1) if kind == "unbounded" else np.zeros(len(support), bool)
         self.mapped = np.flatnonzero(bounded)
@@ -127,9 +126,3 @@ class SamplerSpace:
         if self.coordinates.identity:
             return np.asarray(lp_sampler, dtype=float)
         return np.asarray(lp_sampler, dtype=float) - self.coordinates.log_jacobian(y)
-
-    def sampler_log_prob(self, y, lp_physical) -> np.ndarray:
-        """The sampler's ln p for points with physical ln p(x)."""
-        if self.coordinates.identity:
-            return np.asarray(lp_physical, dtype=float)
-        return np.asarray(lp_physical, dtype=float) + self.coordinates.log_jacobian(y)
